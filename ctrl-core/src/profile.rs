@@ -1,0 +1,1 @@
+//! Trapezoidal motion profiles (work in progress).

@@ -1,0 +1,1 @@
+//! (module analysis: work in progress, see DEVELOPERS.md)

@@ -1,0 +1,59 @@
+//! Command-line front end: one file per subcommand, each with `Args` and `run`.
+
+use std::fmt;
+
+pub mod emit;
+pub mod identify;
+pub mod lead;
+pub mod pd;
+pub mod pi;
+pub mod profile;
+pub mod simulate;
+pub mod sweep;
+
+/// Exit status for a request the tool refuses (bad input, infeasible design).
+pub const EXIT_BAD_INPUT: i32 = 2;
+/// Exit status for a failure of the tool or the environment (an unwritable file).
+pub const EXIT_FAILURE: i32 = 1;
+
+/// An error a subcommand reports: printed to stderr, then the process exits with `code`.
+#[derive(Debug)]
+pub struct CliError {
+    /// Process exit status.
+    pub code: i32,
+    /// What went wrong, where, and the valid range.
+    pub message: String,
+}
+
+impl CliError {
+    /// A refused input (exit status 2).
+    pub fn bad_input(message: impl Into<String>) -> Self {
+        CliError {
+            code: EXIT_BAD_INPUT,
+            message: message.into(),
+        }
+    }
+    /// A failure that is not the input's fault (exit status 1).
+    pub fn failure(message: impl Into<String>) -> Self {
+        CliError {
+            code: EXIT_FAILURE,
+            message: message.into(),
+        }
+    }
+}
+
+impl fmt::Display for CliError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.message)
+    }
+}
+
+/// Output format shared by every subcommand.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum)]
+pub enum Format {
+    /// A readable table.
+    #[default]
+    Text,
+    /// One JSON object on stdout.
+    Json,
+}

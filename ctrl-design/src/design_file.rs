@@ -1,0 +1,1 @@
+//! (module design_file: work in progress, see DEVELOPERS.md)

@@ -1,0 +1,1 @@
+//! (module emit: work in progress, see DEVELOPERS.md)

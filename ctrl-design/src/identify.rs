@@ -1,0 +1,1 @@
+//! (module identify: work in progress, see DEVELOPERS.md)

@@ -1,0 +1,1 @@
+//! (module sim: work in progress, see DEVELOPERS.md)

@@ -1,0 +1,1 @@
+//! (module sweep: work in progress, see DEVELOPERS.md)

@@ -1,0 +1,1 @@
+//! (module tune: work in progress, see DEVELOPERS.md)
