@@ -1,1 +1,0 @@
-//! (module sim: work in progress, see DEVELOPERS.md)
