@@ -1,1 +1,0 @@
-//! (module analysis: work in progress, see DEVELOPERS.md)

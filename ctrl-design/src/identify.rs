@@ -1,1 +1,0 @@
-//! (module identify: work in progress, see DEVELOPERS.md)
