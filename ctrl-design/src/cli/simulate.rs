@@ -1,12 +1,379 @@
-//! `ctrl-design simulate` (work in progress).
+//! `ctrl-design simulate`: one nonlinear discrete run of a position loop, with its figures
+//! and an optional SVG plot.
 
-use super::CliError;
+use super::{CliError, Format};
+use ctrl_design::sim::{
+    self, Command, DerivativeForm, Disturbance, Feedforward, IdealLoop, LoopDesign, Metrics,
+    SimConfig, SimError,
+};
+use ctrl_design::Plant;
+use std::path::PathBuf;
+
+/// Which arithmetic the loop runs in.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Arithmetic {
+    /// The `ctrl-core` fixed-point loop, as the firmware runs it.
+    Fixed,
+    /// The same loop in `f64` (no quantization of gains or signals).
+    F64,
+    /// Both, side by side (`simulate` only).
+    Both,
+}
+
+/// Derivative form, as in `ctrl-core`'s PD loop.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum DerivativeArg {
+    /// Differentiate the tracking error (the closed loop has the PD zero).
+    OnError,
+    /// Differentiate minus the measured position (no kick on a step).
+    OnMeasurement,
+}
+
+/// Plant, loop and command flags shared by `simulate` and `sweep`.
+#[derive(Debug, Clone, clap::Args)]
+pub struct SimArgs {
+    /// Plant gain K, units/s per volt (> 0).
+    #[arg(long, allow_negative_numbers = true, value_name = "K")]
+    pub plant_gain: f64,
+    /// Plant time constant T, s (> 0).
+    #[arg(long, allow_negative_numbers = true, value_name = "T")]
+    pub time_constant: f64,
+    /// Friction bias, V (>= 0).
+    #[arg(long, allow_negative_numbers = true, value_name = "VOLTS", default_value_t = 0.0)]
+    pub bias: f64,
+    /// Proportional gain, V per unit of position error (> 0).
+    #[arg(long, allow_negative_numbers = true)]
+    pub kp: f64,
+    /// Derivative gain, V per unit/s (>= 0).
+    #[arg(long, allow_negative_numbers = true)]
+    pub kd: f64,
+    /// What the derivative term differentiates.
+    #[arg(long, value_enum, default_value = "on-error")]
+    pub derivative: DerivativeArg,
+    /// Loop rate, Hz (> 0).
+    #[arg(long, allow_negative_numbers = true, value_name = "HZ", default_value_t = 500.0)]
+    pub rate: f64,
+    /// Encoder counts per unit (> 0); without it (or --count-size) the position is read
+    /// exactly.
+    #[arg(long, allow_negative_numbers = true, value_name = "N", conflicts_with = "count_size")]
+    pub counts_per_unit: Option<f64>,
+    /// Distance of one encoder count, units (> 0).
+    #[arg(long, allow_negative_numbers = true, value_name = "UNITS")]
+    pub count_size: Option<f64>,
+    /// Supply voltage, V (> 0); the command is clipped at it. Without it: no limit
+    /// (f64 arithmetic only).
+    #[arg(long, allow_negative_numbers = true, value_name = "VOLTS")]
+    pub supply: Option<f64>,
+    /// Computation delay, ticks (0 ..= 16).
+    #[arg(long, value_name = "TICKS", default_value_t = 0)]
+    pub delay_ticks: u32,
+    /// Run on feedback alone (no speed, acceleration or bias feedforward).
+    #[arg(long)]
+    pub no_feedforward: bool,
+    /// Constant load, as the drive voltage that balances it (V, finite; negative opposes
+    /// forward motion).
+    #[arg(long, value_name = "VOLTS", allow_negative_numbers = true)]
+    pub disturbance: Option<f64>,
+    /// When the load starts, s (>= 0).
+    #[arg(long, allow_negative_numbers = true, value_name = "S", default_value_t = 0.0)]
+    pub disturbance_at: f64,
+    /// A setpoint step of this distance, units (non-zero).
+    #[arg(long, value_name = "UNITS", allow_negative_numbers = true, conflicts_with_all = ["distance", "cruise_speed", "accel"])]
+    pub step: Option<f64>,
+    /// A trapezoidal move of this distance, units (non-zero); needs --cruise-speed and --accel.
+    #[arg(long, value_name = "UNITS", allow_negative_numbers = true, requires_all = ["cruise_speed", "accel"])]
+    pub distance: Option<f64>,
+    /// Cruise speed of the move, units/s (> 0).
+    #[arg(long, allow_negative_numbers = true, value_name = "UNITS_PER_S")]
+    pub cruise_speed: Option<f64>,
+    /// Acceleration of the move, units/s^2 (> 0).
+    #[arg(long, allow_negative_numbers = true, value_name = "UNITS_PER_S2")]
+    pub accel: Option<f64>,
+    /// Simulated time, s (default: the move's duration + 1 s).
+    #[arg(long, allow_negative_numbers = true, value_name = "S")]
+    pub duration: Option<f64>,
+    /// Settling band, percent of the distance (0 < band < 100).
+    #[arg(long, allow_negative_numbers = true, value_name = "PERCENT", default_value_t = 2.0)]
+    pub band: f64,
+}
 
 /// Arguments of `ctrl-design simulate`.
 #[derive(Debug, clap::Args)]
-pub struct Args {}
+pub struct Args {
+    #[command(flatten)]
+    sim: SimArgs,
+    /// Arithmetic of the loop.
+    #[arg(long, value_enum, default_value = "fixed")]
+    arithmetic: Arithmetic,
+    /// Output format.
+    #[arg(long, value_enum, default_value = "text")]
+    format: Format,
+    /// Write an SVG plot of the run (position, speed, voltage split) to this file.
+    #[arg(long, value_name = "FILE.svg")]
+    plot: Option<PathBuf>,
+    /// Name of the distance unit, for the plot's labels.
+    #[arg(long, default_value = "units")]
+    unit: String,
+}
+
+/// A checked simulation request: the run's configuration and the loop design.
+#[derive(Debug, Clone, Copy)]
+pub struct Setup {
+    /// The run.
+    pub config: SimConfig,
+    /// The loop, designed for `config.plant`.
+    pub design: LoopDesign,
+}
+
+/// The flag that sets a [`SimConfig`] field, for error messages.
+fn flag_of(field: &str) -> &'static str {
+    match field {
+        "gain" => "--plant-gain",
+        "time_constant_s" => "--time-constant",
+        "bias_volts" => "--bias",
+        "rate_hz" => "--rate",
+        "count_size" => "--count-size / --counts-per-unit",
+        "supply_volts" => "--supply",
+        "delay_ticks" => "--delay-ticks",
+        "disturbance.volts" => "--disturbance",
+        "disturbance.start_s" => "--disturbance-at",
+        "distance" => "--step / --distance",
+        "cruise_speed" => "--cruise-speed",
+        "accel" => "--accel",
+        "ticks" => "--duration",
+        "band" => "--band",
+        _ => "(input)",
+    }
+}
+
+fn bad(flag: &str, value: f64, valid: &str) -> CliError {
+    CliError::bad_input(format!("{flag} = {value} is out of range: valid is {valid}"))
+}
+
+/// A [`SimError`] as a refused input naming the flag.
+pub fn sim_error(e: SimError) -> CliError {
+    let valid = if e.field == "band" {
+        "0 < band < 100 (percent of the distance)"
+    } else {
+        e.valid
+    };
+    let value = if e.field == "band" { e.value * 100.0 } else { e.value };
+    bad(flag_of(e.field), value, valid)
+}
+
+impl SimArgs {
+    /// Checks the flags and builds the run and the loop.
+    pub fn setup(&self) -> Result<Setup, CliError> {
+        let plant = Plant::new(self.plant_gain, self.time_constant, self.bias)
+            .map_err(|ctrl_design::PlantError::OutOfRange { field, value, valid }| {
+                bad(flag_of(field), value, valid)
+            })?;
+        if !(self.kp.is_finite() && self.kp > 0.0) {
+            return Err(bad("--kp", self.kp, "finite and > 0 (V per unit)"));
+        }
+        if !(self.kd.is_finite() && self.kd >= 0.0) {
+            return Err(bad("--kd", self.kd, "finite and >= 0 (V per unit/s)"));
+        }
+        let count_size = match (self.counts_per_unit, self.count_size) {
+            (Some(n), _) => {
+                if !(n.is_finite() && n > 0.0) {
+                    return Err(bad("--counts-per-unit", n, "finite and > 0 (counts per unit)"));
+                }
+                Some(1.0 / n)
+            }
+            (None, c) => c,
+        };
+        let command = match (self.step, self.distance) {
+            (Some(d), _) => Command::Step { distance: d },
+            (None, Some(d)) => Command::Move {
+                distance: d,
+                cruise_speed: self.cruise_speed.unwrap_or(f64::NAN),
+                accel: self.accel.unwrap_or(f64::NAN),
+            },
+            (None, None) => {
+                return Err(CliError::bad_input(
+                    "give a command: --step DISTANCE, or --distance with --cruise-speed and --accel",
+                ))
+            }
+        };
+        let disturbance = self.disturbance.map(|v| Disturbance {
+            volts: v,
+            start_s: self.disturbance_at,
+        });
+        if let Some(d) = self.duration {
+            if !(d.is_finite() && d > 0.0 && d * self.rate <= f64::from(u32::MAX)) {
+                return Err(bad(
+                    "--duration",
+                    d,
+                    "finite, > 0 and at most 2^32 - 1 ticks (seconds)",
+                ));
+            }
+        }
+        let mut config = SimConfig {
+            plant,
+            rate_hz: self.rate,
+            count_size,
+            supply_volts: self.supply.unwrap_or(f64::INFINITY),
+            delay_ticks: self.delay_ticks,
+            disturbance,
+            command,
+            ticks: 1,
+            band: self.band / 100.0,
+        };
+        if let Some(s) = self.supply {
+            if !(s.is_finite() && s > 0.0) {
+                return Err(bad("--supply", s, "finite and > 0 (volts)"));
+            }
+        }
+        config.check().map_err(sim_error)?;
+        let duration = self
+            .duration
+            .unwrap_or_else(|| command.duration_s() + 1.0);
+        let ticks = (duration * self.rate).round();
+        if !(ticks >= 1.0 && ticks <= f64::from(u32::MAX)) {
+            return Err(bad(
+                "--duration",
+                duration,
+                "at least one tick and at most 2^32 - 1 ticks (seconds)",
+            ));
+        }
+        config.ticks = ticks as u32;
+        let design = LoopDesign {
+            kp: self.kp,
+            kd: self.kd,
+            derivative: match self.derivative {
+                DerivativeArg::OnError => DerivativeForm::OnError,
+                DerivativeArg::OnMeasurement => DerivativeForm::OnMeasurement,
+            },
+            feedforward: (!self.no_feedforward).then(|| Feedforward::for_plant(&plant)),
+        };
+        Ok(Setup { config, design })
+    }
+}
+
+/// One arithmetic's result.
+#[derive(Debug, serde::Serialize)]
+struct Run {
+    arithmetic: &'static str,
+    metrics: Metrics,
+}
+
+#[derive(Debug, serde::Serialize)]
+struct Report<'a> {
+    config: &'a SimConfig,
+    design: &'a LoopDesign,
+    kd_per_tick: f64,
+    duration_s: f64,
+    runs: Vec<Run>,
+}
+
+fn fmt_opt(v: Option<f64>, scale: f64, unit: &str) -> String {
+    match v {
+        Some(x) => format!("{:.4} {unit}", x * scale),
+        None => "never".to_string(),
+    }
+}
+
+fn print_text(r: &Report<'_>) {
+    let c = r.config;
+    println!(
+        "plant: K = {} units/s/V, T = {} s, bias = {} V",
+        c.plant.gain, c.plant.time_constant_s, c.plant.bias_volts
+    );
+    println!(
+        "loop: kp = {} V/unit, kd = {} V/(unit/s) ({} V per unit/tick), {:?}, feedforward {}",
+        r.design.kp,
+        r.design.kd,
+        r.kd_per_tick,
+        r.design.derivative,
+        if r.design.feedforward.is_some() { "on" } else { "off" }
+    );
+    println!(
+        "run: {} Hz, {} ticks ({} s), count size {}, supply {}, delay {} ticks",
+        c.rate_hz,
+        c.ticks,
+        r.duration_s,
+        c.count_size.map_or("exact".to_string(), |s| format!("{s} units")),
+        if c.supply_volts.is_finite() {
+            format!("{} V", c.supply_volts)
+        } else {
+            "unlimited".to_string()
+        },
+        c.delay_ticks
+    );
+    for run in &r.runs {
+        let m = &run.metrics;
+        println!("\n[{}]", run.arithmetic);
+        println!("  overshoot            {:.4} %", m.overshoot_pct);
+        println!("  peak time            {:.4} s", m.peak_time_s);
+        println!("  rise time (10-90 %)  {}", fmt_opt(m.rise_time_s, 1.0, "s"));
+        println!("  settling time        {}", fmt_opt(m.settling_time_s, 1.0, "s"));
+        println!("  final error          {:.6} units", m.final_error);
+        println!("  max tracking error   {:.6} units", m.max_tracking_error);
+        println!("  peak voltage         {:.4} V", m.peak_volts);
+        println!("  RMS voltage          {:.4} V", m.rms_volts);
+        println!("  voltage variation    {:.4} V", m.voltage_total_variation);
+        println!("  ticks at the supply  {}", m.saturated_ticks);
+    }
+}
 
 /// Runs the subcommand.
-pub fn run(_args: Args) -> Result<(), CliError> {
-    Err(CliError::failure("`simulate` is not implemented yet"))
+pub fn run(args: Args) -> Result<(), CliError> {
+    let Setup { config, design } = args.sim.setup()?;
+    let wants = |a: Arithmetic| args.arithmetic == a || args.arithmetic == Arithmetic::Both;
+    let mut runs = Vec::new();
+    let mut trace = None;
+    if wants(Arithmetic::Fixed) {
+        return Err(CliError::failure(
+            "--arithmetic fixed is not available yet (ctrl-core loop pending); use --arithmetic f64",
+        ));
+    }
+    if wants(Arithmetic::F64) {
+        let mut ctrl = IdealLoop::new(&design, &config.command, config.rate_hz);
+        let (m, t) = if args.plot.is_some() && trace.is_none() {
+            let (m, t) = sim::simulate_traced(&config, &mut ctrl);
+            (m, Some(t))
+        } else {
+            (sim::simulate(&config, &mut ctrl), None)
+        };
+        if t.is_some() {
+            trace = t;
+        }
+        runs.push(Run {
+            arithmetic: "f64",
+            metrics: m,
+        });
+    }
+    if let (Some(path), Some(t)) = (&args.plot, &trace) {
+        let title = format!(
+            "{} of {} {} ({} arithmetic)",
+            match config.command {
+                Command::Step { .. } => "step",
+                Command::Move { .. } => "move",
+            },
+            config.command.distance(),
+            args.unit,
+            runs[0].arithmetic
+        );
+        sim::plot_svg(t, &args.unit, &title, path).map_err(|e| {
+            CliError::failure(format!("cannot write the plot {}: {e}", path.display()))
+        })?;
+    }
+    let report = Report {
+        config: &config,
+        design: &design,
+        kd_per_tick: design.kd * config.rate_hz,
+        duration_s: f64::from(config.ticks) / config.rate_hz,
+        runs,
+    };
+    match args.format {
+        Format::Json => println!(
+            "{}",
+            serde_json::to_string(&report)
+                .map_err(|e| CliError::failure(format!("cannot encode the report: {e}")))?
+        ),
+        Format::Text => print_text(&report),
+    }
+    Ok(())
 }
