@@ -7,7 +7,8 @@
 /// Sampling: positions are taken at the tick instants (a peak between two ticks is not
 /// seen). The definitions follow the usual step-response figures on sampled data: rise time
 /// from the first sample at or above 10 % of the distance to the first at or above 90 %;
-/// settling time is the first sample after which the position stays within the band.
+/// settling time is the first sample after which the position stays strictly within the
+/// band (the same convention as python-control's `step_info`).
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Metrics {
     /// Overshoot beyond the target, percent of the commanded distance (>= 0).
@@ -97,7 +98,7 @@ impl MetricsAcc {
                 self.first90 = Some(k);
             }
         }
-        if (y - self.target_abs).abs() > self.band_abs {
+        if (y - self.target_abs).abs() >= self.band_abs {
             self.last_outside = Some(k);
         }
         let track = (setpoint - position).abs();
