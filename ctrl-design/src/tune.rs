@@ -217,7 +217,7 @@ pub fn design_pd(
             value: settling_time_s,
             reason: format!(
                 "the derivative gain would be negative (Kd = (2 zeta wn T - 1) / K with wn = {c} / (zeta t_s)); \
-                 the plant alone is that fast"
+                 the plant's own damping 1/T already exceeds the 2 zeta wn that slow a response asks for"
             ),
             valid: format!("0 < settling time <= 2 * {c} * T = {longest} s"),
         });
@@ -656,7 +656,7 @@ pub fn design_pi(
         return Err(DesignError::Infeasible {
             field: "bandwidth_rad_s",
             value: bandwidth_rad_s,
-            reason: "the proportional gain would be negative (the plant alone is that fast)"
+            reason: "the proportional gain would be negative (the plant's own damping 1/T already exceeds the 2 zeta wn asked for)"
                 .to_string(),
             valid: format!(">= {bw_min} rad/s at damping {damping}"),
         });

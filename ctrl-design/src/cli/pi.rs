@@ -1,12 +1,96 @@
-//! `ctrl-design pi` (work in progress).
+//! `ctrl-design pi`: PI speed loop from closed-loop bandwidth and damping.
 
-use super::CliError;
+use super::pd::{
+    band_from, design_error, plant_from, positive, print_json, report_table, report_warnings,
+};
+use super::{CliError, Format};
+use ctrl_design::{analysis, tune};
 
 /// Arguments of `ctrl-design pi`.
 #[derive(Debug, clap::Args)]
-pub struct Args {}
+pub struct Args {
+    /// Plant gain K, units/s per volt.
+    #[arg(long)]
+    pub plant_gain: f64,
+    /// Plant time constant T, seconds.
+    #[arg(long)]
+    pub time_constant: f64,
+    /// Friction bias, volts (for the feedforward output).
+    #[arg(long, default_value_t = 0.0)]
+    pub bias: f64,
+    /// Closed-loop -3 dB bandwidth of the speed loop, rad/s.
+    #[arg(long)]
+    pub bandwidth: f64,
+    /// Damping ratio of the closed-loop poles.
+    #[arg(long, default_value_t = 0.8)]
+    pub damping: f64,
+    /// Settling band, percent of the final value.
+    #[arg(long, default_value_t = 2.0)]
+    pub band: f64,
+    /// Loop rate, Hz: adds the per-tick gain and the discrete blocks.
+    #[arg(long)]
+    pub rate: Option<f64>,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+}
+
+fn to_value<T: serde::Serialize>(v: &T) -> serde_json::Value {
+    serde_json::to_value(v).unwrap_or(serde_json::Value::Null)
+}
 
 /// Runs the subcommand.
-pub fn run(_args: Args) -> Result<(), CliError> {
-    Err(CliError::failure("`pi` is not implemented yet"))
+pub fn run(args: Args) -> Result<(), CliError> {
+    let plant = plant_from(args.plant_gain, args.time_constant, args.bias)?;
+    let band = band_from(args.band)?;
+    positive("--rate", args.rate, "Hz")?;
+    let d = tune::design_pi(&plant, args.bandwidth, args.damping).map_err(design_error)?;
+    let rep = analysis::report_pi(&plant, d.kp, d.ki, args.rate, band);
+    let mut warnings = Vec::new();
+    report_warnings(&rep, &mut warnings);
+    if let Some(r) = args.rate {
+        let ratio = r / (args.bandwidth / (2.0 * std::f64::consts::PI));
+        if ratio < tune::MIN_RATE_PER_BANDWIDTH {
+            warnings.push(format!(
+                "loop rate {r} Hz is only {ratio:.1} x the closed-loop bandwidth (common practice: at least {} x)",
+                tune::MIN_RATE_PER_BANDWIDTH
+            ));
+        }
+    }
+    match args.format {
+        Format::Json => {
+            let mut out = serde_json::Map::new();
+            if let serde_json::Value::Object(m) = to_value(&d) {
+                out.extend(m);
+            }
+            if let Some(r) = args.rate {
+                out.insert("ki_per_tick".into(), d.ki_per_tick(r).into());
+            }
+            if let serde_json::Value::Object(m) = to_value(&rep) {
+                out.extend(m);
+            }
+            out.insert("feedforward".into(), to_value(&tune::feedforward(&plant)));
+            out.insert("warnings".into(), to_value(&warnings));
+            print_json(&serde_json::Value::Object(out))
+        }
+        Format::Text => {
+            println!(
+                "PI speed loop: bandwidth {} rad/s, damping {}",
+                d.bandwidth_rad_s, d.damping
+            );
+            println!(
+                "  kp {:.6} V/(unit/s), ki {:.6} V/(unit/s)/s, natural frequency {:.4} rad/s",
+                d.kp, d.ki, d.natural_frequency
+            );
+            if let Some(r) = args.rate {
+                println!("  ki per tick {:.8} at {r} Hz", d.ki_per_tick(r));
+            }
+            println!();
+            print!("{}", report_table(&rep));
+            for w in &warnings {
+                println!("warning: {w}");
+            }
+            Ok(())
+        }
+    }
 }
