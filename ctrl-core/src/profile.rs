@@ -1,1 +1,822 @@
-//! Trapezoidal motion profiles (work in progress).
+//! Trapezoidal motion profiles that land exactly.
+//!
+//! A [`Move`] is a distance, a cruise speed, an end speed and an acceleration, in encoder
+//! counts and ticks (counts, counts/tick, counts/tick²), all [`I32F32`]. [`Profile::start`]
+//! plans it from the current setpoint (position *and* speed), and [`Profile::step`] yields
+//! one [`Setpoint`] (position, speed, acceleration) per tick.
+//!
+//! # The discrete model
+//!
+//! All arithmetic is on the raw bits of [`I32F32`] (one LSB = 2⁻³² count), so it is exact
+//! integer arithmetic. `v[k]` is the setpoint speed at tick `k`, `v[0]` the speed when the
+//! move starts and `v[K] = end speed` when it ends, `K` ticks later. The position is
+//! advanced by the trapezoid rule, `p[k] = p[k-1] + (v[k-1] + v[k]) / 2`, kept internally
+//! as a doubled value so the halving never loses anything; the reported position is the
+//! doubled value halved and rounded down (at most ½ LSB below the exact trapezoid sum, and
+//! equal to it at the end of the move). So `p` and `v` describe the same instant.
+//!
+//! # The plan (made once in [`Profile::start`])
+//!
+//! Work in the move's direction (`w = ±v`), with start speed `w0`, end speed `ve`,
+//! acceleration `a` and cruise speed `vc`. For a move of `K` ticks, every speed sequence
+//! that changes by at most `a` per tick and starts at `w0` and ends at `ve` lies between
+//!
+//! ```text
+//! L[k] = max(w0 - k a, ve - (K-k) a)     (brake as late/early as possible)
+//! U[k] = min(w0 + k a, ve + (K-k) a)     (accelerate likewise)
+//! ```
+//!
+//! The profile is `w[k] = clamp(c, L[k], U[k])` for one integer "cruise level" `c`. Because
+//! `L` and `U` each move by at most `a` per tick, so does the clamp: the acceleration limit
+//! holds **exactly**. With `c = vc` this is the fastest profile of all (it is the upper
+//! envelope), with a ramp at full acceleration, a tick with whatever speed change is left
+//! over where the ramp meets the cruise level, the cruise, and the same at the end; when
+//! the ramps meet before reaching `c` it is the triangular profile.
+//!
+//! `start` then
+//!
+//! 1. picks the smallest `K` for which `c = vc` covers the distance (an exponential then
+//!    binary search over `K`, with the interior sum `S_K(c) = Σ w[k]` in closed form: the
+//!    clamp is affine in `k` between at most six break points, so each piece is an
+//!    arithmetic series);
+//! 2. finds the largest `c ≤ vc` with `S_K(c) ≤ distance` (Newton steps on the piecewise
+//!    linear `S_K`, guarded by bisection);
+//! 3. puts the remainder `R = distance − S_K(c)` (fewer LSB than the number of ticks that
+//!    sit on the cruise level) as `+1 LSB` on the first `R` of those ticks. They are at
+//!    `c + 1 ≤ vc`, and moving a cruise tick by one LSB keeps every speed change within `a`
+//!    (it is one LSB against another cruise tick, and towards a ramp tick it closes a gap
+//!    the ramp already had).
+//!
+//! Per tick, [`Profile::step`] only adds `a` to four lines, takes two `max`/`min` and one
+//! clamp, and adds the speed to the position: no multiplication, no division.
+//!
+//! If no `K` works with `c ≥ 0` (the setpoint is too fast to stop within the distance, or
+//! the new target is behind it, including a zero distance while moving) and the end speed
+//! is zero, the plan allows `c` down to `−vc`: the profile brakes at full acceleration,
+//! reverses, cruises back at most at `vc` and stops exactly at the target. With a non-zero
+//! end speed such a move is refused with [`Error::OutOfRange`] (the end speed cannot be
+//! reached within the distance).
+//!
+//! # Guarantees and error bounds
+//!
+//! For every accepted move (given an `accel` of at least 1 LSB):
+//!
+//! * **Exact arrival:** after the last tick the position is the start position plus the
+//!   distance, bit for bit, and the speed is the end speed (in the direction of the
+//!   distance). Positions therefore never drift over any number of moves.
+//! * **Acceleration:** `|v[k] − v[k−1]| ≤ accel` on every tick (no LSB over), also across a
+//!   retarget (the new plan starts from the current speed).
+//! * **Speed:** `|v[k]| ≤ cruise_speed` on every tick, except while a start speed above
+//!   the cruise speed is being shed (then `|v|` falls by `accel` per tick).
+//! * **Monotone:** when start and end speed are not against the direction of the move and
+//!   no reversal is needed, the speed never changes sign, so the position is monotone.
+//! * **Time:** for a move with `0 ≤ w0 ≤ vc`, `0 ≤ ve ≤ vc` and no reversal, let `T` be the
+//!   continuous closed-form time (ramps `|vc − w0|/a` and `|vc − ve|/a` plus cruise, or the
+//!   triangular form with peak `v_p = √(a d + (w0² + ve²)/2)`). Then
+//!   `T ≤ K < T + 1 + (a/4 + ½ LSB) / v_top`, with `v_top = min(vc, v_p)`. The `a/4` is the
+//!   area the sampled ramps lose at their corners (at most `a φ(1−φ)` for corners falling
+//!   at fraction `φ` of a tick), and the ½ LSB is the parity adjustment of the doubled
+//!   position. For the demo rover's forward axis (`a ≈ 0.013`, `vc ≈ 2.18` counts/tick)
+//!   that is `K < T + 1.0015`.
+//! * **Position rounding:** within a move the reported position is the exact trapezoid
+//!   sum rounded down to an LSB (≤ ½ LSB off).
+//!
+//! # Overflow policy
+//!
+//! The planner works in `i128` and refuses (with [`Error::OutOfRange`]) a target outside
+//! the [`I32F32`] range or a plan longer than [`MAX_TICKS`]; within an accepted plan no
+//! value can overflow. The position accumulator is an `i128` doubled position; the reported
+//! position saturates at the [`I32F32`] range (only reachable while coasting at a non-zero
+//! end speed for a very long time), speeds and accelerations saturate at the [`I32F32`]
+//! range.
+//!
+//! # Cost
+//!
+//! `step` is a few `i128` additions and comparisons. `start` evaluates the closed-form sum
+//! about `2 log2(K) + 10` times, each with six `i128` divisions; on a core without a
+//! divider (thumbv6m) call it from the main loop rather than from the tick interrupt if the
+//! tick budget is tight.
+
+use fixed::types::I32F32;
+
+use crate::Error;
+
+/// Longest plan that [`Profile::start`] accepts, in ticks (2⁴⁰: about 70 years at 500 Hz).
+///
+/// ```
+/// assert_eq!(ctrl_core::profile::MAX_TICKS, 1 << 40);
+/// ```
+pub const MAX_TICKS: u64 = 1 << 40;
+
+/// One move: distance, cruise speed, end speed and acceleration.
+///
+/// * `distance`: counts, relative to the setpoint position when the move starts; any sign,
+///   or zero (come to rest here).
+/// * `cruise_speed`: counts/tick, magnitude, must be `> 0`.
+/// * `end_speed`: counts/tick, magnitude in the direction of `distance`, `0 ≤ end_speed ≤
+///   cruise_speed`; must be zero for a zero distance.
+/// * `accel`: counts/tick², magnitude, must be `> 0`.
+///
+/// The values are checked by [`Profile::start`], so a `Move` can be a `const`.
+///
+/// ```
+/// use ctrl_core::profile::Move;
+/// use fixed::types::I32F32;
+///
+/// // 1000 counts forward, cruise 2 counts/tick, stop at the end, 0.01 counts/tick².
+/// const FORWARD: Move = Move::new(
+///     I32F32::lit("1000"),
+///     I32F32::lit("2"),
+///     I32F32::ZERO,
+///     I32F32::lit("0.01"),
+/// );
+/// assert_eq!(FORWARD.distance(), I32F32::from_num(1000));
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Move {
+    distance: I32F32,
+    cruise_speed: I32F32,
+    end_speed: I32F32,
+    accel: I32F32,
+}
+
+impl Move {
+    /// A move; see the type's docs for units and valid ranges.
+    ///
+    /// ```
+    /// use ctrl_core::profile::Move;
+    /// use fixed::types::I32F32;
+    ///
+    /// let back = Move::new(I32F32::from_num(-250), I32F32::ONE, I32F32::ZERO, I32F32::lit("0.02"));
+    /// assert_eq!(back.distance(), I32F32::from_num(-250));
+    /// ```
+    pub const fn new(
+        distance: I32F32,
+        cruise_speed: I32F32,
+        end_speed: I32F32,
+        accel: I32F32,
+    ) -> Move {
+        Move {
+            distance,
+            cruise_speed,
+            end_speed,
+            accel,
+        }
+    }
+
+    /// Distance in counts (relative to the setpoint position at [`Profile::start`]).
+    ///
+    /// ```
+    /// # use ctrl_core::profile::Move;
+    /// # use fixed::types::I32F32;
+    /// let m = Move::new(I32F32::from_num(5), I32F32::ONE, I32F32::ZERO, I32F32::ONE);
+    /// assert_eq!(m.distance(), I32F32::from_num(5));
+    /// ```
+    pub const fn distance(&self) -> I32F32 {
+        self.distance
+    }
+
+    /// Cruise speed in counts/tick (magnitude).
+    ///
+    /// ```
+    /// # use ctrl_core::profile::Move;
+    /// # use fixed::types::I32F32;
+    /// let m = Move::new(I32F32::from_num(5), I32F32::ONE, I32F32::ZERO, I32F32::ONE);
+    /// assert_eq!(m.cruise_speed(), I32F32::ONE);
+    /// ```
+    pub const fn cruise_speed(&self) -> I32F32 {
+        self.cruise_speed
+    }
+
+    /// End speed in counts/tick (magnitude, in the direction of the distance).
+    ///
+    /// ```
+    /// # use ctrl_core::profile::Move;
+    /// # use fixed::types::I32F32;
+    /// let m = Move::new(I32F32::from_num(5), I32F32::ONE, I32F32::lit("0.5"), I32F32::ONE);
+    /// assert_eq!(m.end_speed(), I32F32::lit("0.5"));
+    /// ```
+    pub const fn end_speed(&self) -> I32F32 {
+        self.end_speed
+    }
+
+    /// Acceleration in counts/tick² (magnitude), used for speeding up and slowing down.
+    ///
+    /// ```
+    /// # use ctrl_core::profile::Move;
+    /// # use fixed::types::I32F32;
+    /// let m = Move::new(I32F32::from_num(5), I32F32::ONE, I32F32::ZERO, I32F32::lit("0.25"));
+    /// assert_eq!(m.accel(), I32F32::lit("0.25"));
+    /// ```
+    pub const fn accel(&self) -> I32F32 {
+        self.accel
+    }
+}
+
+/// One tick's setpoint.
+///
+/// * `position`: counts (absolute, in the profile's frame).
+/// * `speed`: counts/tick at the same instant.
+/// * `accel`: counts/tick², the speed change over the tick just ended
+///   (`speed[k] − speed[k−1]`).
+///
+/// ```
+/// use ctrl_core::profile::{Profile, Setpoint};
+/// use fixed::types::I32F32;
+///
+/// let sp = Profile::new().setpoint();
+/// assert_eq!(sp, Setpoint { position: I32F32::ZERO, speed: I32F32::ZERO, accel: I32F32::ZERO });
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Setpoint {
+    /// Setpoint position in counts.
+    pub position: I32F32,
+    /// Setpoint speed in counts/tick.
+    pub speed: I32F32,
+    /// Speed change over the last tick, counts/tick².
+    pub accel: I32F32,
+}
+
+/// What [`Profile::step`] does next.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+enum Mode {
+    /// No move running: keep the current speed (zero after a stop, a hold or a move that
+    /// ends at rest).
+    Coast,
+    /// Running a plan.
+    Plan,
+    /// Braking to rest at `Profile::brake_accel`.
+    Brake,
+}
+
+/// A planned move, in the move's direction (`w = ±v`). See the module docs.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+struct Plan {
+    /// The move runs in the negative direction (speeds are negated on output).
+    negative: bool,
+    /// Ticks done.
+    tick: u64,
+    /// Ticks in the plan (`K`).
+    ticks: u64,
+    /// Acceleration, LSB/tick².
+    accel: i128,
+    /// `w0 + k a`.
+    entry_up: i128,
+    /// `w0 − k a`.
+    entry_down: i128,
+    /// `ve + (K − k) a`.
+    exit_up: i128,
+    /// `ve − (K − k) a`.
+    exit_down: i128,
+    /// Cruise level `c`.
+    level: i128,
+    /// Ticks `bump_from..bump_to` run at `c + 1`.
+    bump_from: u64,
+    /// End (exclusive) of the `+1 LSB` ticks.
+    bump_to: u64,
+}
+
+impl Plan {
+    const IDLE: Plan = Plan {
+        negative: false,
+        tick: 0,
+        ticks: 0,
+        accel: 0,
+        entry_up: 0,
+        entry_down: 0,
+        exit_up: 0,
+        exit_down: 0,
+        level: 0,
+        bump_from: 0,
+        bump_to: 0,
+    };
+
+    /// Next speed (LSB/tick, signed). Adds and compares only.
+    fn advance(&mut self) -> i64 {
+        self.tick = self.tick.saturating_add(1);
+        let a = self.accel;
+        self.entry_up = self.entry_up.saturating_add(a);
+        self.entry_down = self.entry_down.saturating_sub(a);
+        self.exit_up = self.exit_up.saturating_sub(a);
+        self.exit_down = self.exit_down.saturating_add(a);
+        let lower = self.entry_down.max(self.exit_down);
+        let upper = self.entry_up.min(self.exit_up);
+        let level = if self.tick >= self.bump_from && self.tick < self.bump_to {
+            self.level.saturating_add(1)
+        } else {
+            self.level
+        };
+        let w = sat_i64(level.max(lower).min(upper));
+        if self.negative {
+            w.saturating_neg()
+        } else {
+            w
+        }
+    }
+}
+
+/// A trapezoidal motion profile: state plus the running plan.
+///
+/// Starts at rest at position 0 ([`Profile::new`]) or at a given position
+/// ([`Profile::at`]). Each [`Profile::step`] advances one tick. A move is planned by
+/// [`Profile::start`] from the current setpoint, so calling it during a move retargets
+/// smoothly. [`Profile::hold`] freezes at once; [`Profile::stop`] brakes to rest.
+///
+/// After a move that ends at a non-zero end speed the setpoint keeps that speed (and the
+/// position keeps moving) until the next `start`, `stop` or `hold`; [`Profile::is_done`]
+/// is already `true` then, so the next move can be chained on the same tick.
+///
+/// Overflow policy: see the module docs (planner in `i128`, refuses what it cannot
+/// represent; the reported position saturates).
+///
+/// ```
+/// use ctrl_core::profile::{Move, Profile};
+/// use fixed::types::I32F32;
+///
+/// let mut prof = Profile::new();
+/// // Hand check: 6 counts at cruise 2 counts/tick and 1 count/tick² from rest.
+/// // Speeds 0, 1, 2, 2, 1, 0; trapezoid steps 0.5 + 1.5 + 2 + 1.5 + 0.5 = 6 counts in 5 ticks,
+/// // which is also the continuous time 6/2 + 2/1 = 5 ticks.
+/// prof.start(Move::new(I32F32::from_num(6), I32F32::from_num(2), I32F32::ZERO, I32F32::ONE))
+///     .unwrap();
+/// let speeds: Vec<f64> = (0..5).map(|_| prof.step().speed.to_num()).collect();
+/// assert_eq!(speeds, [1.0, 2.0, 2.0, 1.0, 0.0]);
+/// assert!(prof.is_done());
+/// assert_eq!(prof.setpoint().position, I32F32::from_num(6));
+/// ```
+#[derive(Clone, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Profile {
+    /// Doubled position, LSB (2⁻³² count) × 2.
+    pos2: i128,
+    /// Setpoint speed, LSB/tick.
+    speed: i64,
+    /// Last speed change, LSB/tick².
+    accel: i64,
+    /// What `step` does.
+    mode: Mode,
+    /// Deceleration for `stop`: the accel of the last started move, LSB/tick².
+    brake_accel: i64,
+    /// The running plan (meaningful in `Mode::Plan`).
+    plan: Plan,
+}
+
+impl Default for Profile {
+    /// Same as [`Profile::new`].
+    ///
+    /// ```
+    /// use ctrl_core::profile::Profile;
+    /// assert_eq!(Profile::default().setpoint(), Profile::new().setpoint());
+    /// ```
+    fn default() -> Profile {
+        Profile::new()
+    }
+}
+
+impl Profile {
+    /// At rest at position 0, no move.
+    ///
+    /// ```
+    /// use ctrl_core::profile::Profile;
+    /// static _P: Profile = Profile::new(); // const, so it can live in a static
+    /// let p = Profile::new();
+    /// assert!(p.is_done());
+    /// assert_eq!(p.setpoint().position, fixed::types::I32F32::ZERO);
+    /// ```
+    pub const fn new() -> Profile {
+        Profile::at(I32F32::ZERO)
+    }
+
+    /// At rest at `position` (counts), no move.
+    ///
+    /// ```
+    /// use ctrl_core::profile::Profile;
+    /// use fixed::types::I32F32;
+    /// let p = Profile::at(I32F32::from_num(-40));
+    /// assert_eq!(p.setpoint().position, I32F32::from_num(-40));
+    /// ```
+    pub const fn at(position: I32F32) -> Profile {
+        Profile {
+            pos2: 2 * position.to_bits() as i128,
+            speed: 0,
+            accel: 0,
+            mode: Mode::Coast,
+            brake_accel: 0,
+            plan: Plan::IDLE,
+        }
+    }
+
+    /// Plans `mv` from the current setpoint position and speed and makes it the running
+    /// move (retargeting if one is running: the speed carries on, with no step).
+    ///
+    /// # Errors
+    ///
+    /// [`Error::OutOfRange`] (and the profile is left unchanged) when `accel ≤ 0`,
+    /// `cruise_speed ≤ 0`, `end_speed < 0`, `end_speed > cruise_speed`, `end_speed ≠ 0`
+    /// with a zero distance, the target is outside the [`I32F32`] range, the plan would be
+    /// longer than [`MAX_TICKS`], or the end speed cannot be reached within the distance
+    /// without reversing.
+    ///
+    /// ```
+    /// use ctrl_core::{profile::{Move, Profile}, Error};
+    /// use fixed::types::I32F32;
+    ///
+    /// let mut p = Profile::new();
+    /// // 1 count is far too short to reach an end speed of 2 counts/tick at 0.01 counts/tick².
+    /// let bad = Move::new(I32F32::ONE, I32F32::from_num(2), I32F32::from_num(2), I32F32::lit("0.01"));
+    /// assert_eq!(p.start(bad), Err(Error::OutOfRange));
+    /// let good = Move::new(I32F32::from_num(300), I32F32::from_num(2), I32F32::from_num(2), I32F32::lit("0.01"));
+    /// assert_eq!(p.start(good), Ok(()));
+    /// ```
+    pub fn start(&mut self, mv: Move) -> Result<(), Error> {
+        let distance = i128::from(mv.distance.to_bits());
+        let vc = i128::from(mv.cruise_speed.to_bits());
+        let ve = i128::from(mv.end_speed.to_bits());
+        let a = i128::from(mv.accel.to_bits());
+        if a <= 0 || vc <= 0 || ve < 0 || ve > vc || (distance == 0 && ve != 0) {
+            return Err(Error::OutOfRange);
+        }
+        let here = self.pos2 >> 1;
+        let target = here + distance;
+        if target < i128::from(i64::MIN) || target > i128::from(i64::MAX) {
+            return Err(Error::OutOfRange);
+        }
+        let u = i128::from(self.speed);
+        if distance == 0 && u == 0 {
+            // Already there and at rest: nothing to do.
+            self.mode = Mode::Coast;
+            self.accel = 0;
+            self.brake_accel = sat_i64(a);
+            return Ok(());
+        }
+        let negative = distance < 0 || (distance == 0 && u < 0);
+        let sign = if negative { -1 } else { 1 };
+        // Doubled target; its parity makes the interior sum an integer (module docs).
+        let parity = (self.pos2 + u + ve).rem_euclid(2);
+        let q = sign * (2 * target + parity - self.pos2);
+        let w0 = sign * u;
+        let m = (q - w0 - ve) / 2;
+        let found = solve(w0, ve, vc, a, m)?;
+        let n = i128::from(found.ticks);
+        self.plan = Plan {
+            negative,
+            tick: 0,
+            ticks: found.ticks,
+            accel: a,
+            entry_up: w0,
+            entry_down: w0,
+            exit_up: ve + n * a,
+            exit_down: ve - n * a,
+            level: found.level,
+            bump_from: found.bump_from,
+            bump_to: found.bump_from + found.bump,
+        };
+        self.mode = Mode::Plan;
+        self.brake_accel = sat_i64(a);
+        Ok(())
+    }
+
+    /// Advances one tick and returns the new setpoint. Adds and compares only; never
+    /// panics.
+    ///
+    /// ```
+    /// use ctrl_core::profile::{Move, Profile};
+    /// use fixed::types::I32F32;
+    ///
+    /// let mut p = Profile::new();
+    /// p.start(Move::new(I32F32::from_num(6), I32F32::from_num(2), I32F32::ZERO, I32F32::ONE)).unwrap();
+    /// let sp = p.step();
+    /// // First tick: speed 0 -> 1, position 0 + (0 + 1)/2 = 0.5, accel 1.
+    /// assert_eq!((sp.position, sp.speed, sp.accel),
+    ///            (I32F32::lit("0.5"), I32F32::ONE, I32F32::ONE));
+    /// ```
+    pub fn step(&mut self) -> Setpoint {
+        let prev = self.speed;
+        let next = match self.mode {
+            Mode::Coast => prev,
+            Mode::Plan => {
+                let v = self.plan.advance();
+                if self.plan.tick >= self.plan.ticks {
+                    self.mode = Mode::Coast;
+                }
+                v
+            }
+            Mode::Brake => {
+                let a = self.brake_accel;
+                if prev > a {
+                    prev - a
+                } else if prev < -a {
+                    prev + a
+                } else {
+                    self.mode = Mode::Coast;
+                    0
+                }
+            }
+        };
+        self.pos2 = self
+            .pos2
+            .saturating_add(i128::from(prev) + i128::from(next));
+        self.accel = next.saturating_sub(prev);
+        self.speed = next;
+        self.setpoint()
+    }
+
+    /// Emergency hold: freezes the setpoint at its current position with speed 0 and drops
+    /// the running move. The speed steps to zero at once (this is the one place where the
+    /// acceleration limit is not kept).
+    ///
+    /// ```
+    /// use ctrl_core::profile::{Move, Profile};
+    /// use fixed::types::I32F32;
+    ///
+    /// let mut p = Profile::new();
+    /// p.start(Move::new(I32F32::from_num(100), I32F32::ONE, I32F32::ZERO, I32F32::lit("0.1"))).unwrap();
+    /// for _ in 0..20 { p.step(); }
+    /// p.hold();
+    /// let here = p.setpoint().position;
+    /// assert_eq!(p.step().position, here);
+    /// assert_eq!(p.setpoint().speed, I32F32::ZERO);
+    /// assert!(p.is_done());
+    /// ```
+    pub fn hold(&mut self) {
+        self.mode = Mode::Coast;
+        self.speed = 0;
+        self.accel = 0;
+    }
+
+    /// Brakes to rest at the acceleration of the last started move (the speed falls by
+    /// that much per tick, the last tick takes what is left), then holds. The position
+    /// ends wherever braking takes it. With no move started yet it holds at once.
+    ///
+    /// ```
+    /// use ctrl_core::profile::{Move, Profile};
+    /// use fixed::types::I32F32;
+    ///
+    /// let mut p = Profile::new();
+    /// p.start(Move::new(I32F32::from_num(1000), I32F32::ONE, I32F32::ZERO, I32F32::lit("0.25"))).unwrap();
+    /// for _ in 0..10 { p.step(); } // up at 0.25 per tick: cruising at 1 after 4 ticks
+    /// p.stop();
+    /// let speeds: Vec<f64> = (0..4).map(|_| p.step().speed.to_num()).collect();
+    /// assert_eq!(speeds, [0.75, 0.5, 0.25, 0.0]);
+    /// assert!(p.is_done());
+    /// ```
+    pub fn stop(&mut self) {
+        if self.speed == 0 || self.brake_accel <= 0 {
+            self.hold();
+        } else {
+            self.mode = Mode::Brake;
+        }
+    }
+
+    /// `true` when no move is running (finished, held, stopped at rest, or never started).
+    /// While braking after [`Profile::stop`] it is `false` until the speed is zero.
+    ///
+    /// ```
+    /// use ctrl_core::profile::{Move, Profile};
+    /// use fixed::types::I32F32;
+    ///
+    /// let mut p = Profile::new();
+    /// assert!(p.is_done());
+    /// p.start(Move::new(I32F32::ONE, I32F32::ONE, I32F32::ZERO, I32F32::ONE)).unwrap();
+    /// assert!(!p.is_done());
+    /// while !p.is_done() { p.step(); }
+    /// assert_eq!(p.setpoint().position, I32F32::ONE);
+    /// ```
+    pub const fn is_done(&self) -> bool {
+        matches!(self.mode, Mode::Coast)
+    }
+
+    /// Ticks left in the running move (0 when none is running; while braking after
+    /// [`Profile::stop`], also 0).
+    ///
+    /// ```
+    /// use ctrl_core::profile::{Move, Profile};
+    /// use fixed::types::I32F32;
+    ///
+    /// let mut p = Profile::new();
+    /// p.start(Move::new(I32F32::from_num(6), I32F32::from_num(2), I32F32::ZERO, I32F32::ONE)).unwrap();
+    /// assert_eq!(p.ticks_left(), 5);
+    /// p.step();
+    /// assert_eq!(p.ticks_left(), 4);
+    /// ```
+    pub const fn ticks_left(&self) -> u64 {
+        match self.mode {
+            Mode::Plan => self.plan.ticks.saturating_sub(self.plan.tick),
+            Mode::Coast | Mode::Brake => 0,
+        }
+    }
+
+    /// The current setpoint (what the last [`Profile::step`] returned, or the start state).
+    ///
+    /// ```
+    /// use ctrl_core::profile::Profile;
+    /// use fixed::types::I32F32;
+    /// assert_eq!(Profile::at(I32F32::from_num(3)).setpoint().position, I32F32::from_num(3));
+    /// ```
+    pub const fn setpoint(&self) -> Setpoint {
+        Setpoint {
+            position: I32F32::from_bits(sat_i64(self.pos2 >> 1)),
+            speed: I32F32::from_bits(self.speed),
+            accel: I32F32::from_bits(self.accel),
+        }
+    }
+}
+
+/// `i128` to `i64`, saturating.
+const fn sat_i64(x: i128) -> i64 {
+    if x > i64::MAX as i128 {
+        i64::MAX
+    } else if x < i64::MIN as i128 {
+        i64::MIN
+    } else {
+        x as i64
+    }
+}
+
+/// `floor(x / d)` for `d > 0` (callers guarantee it).
+fn floor_div(x: i128, d: i128) -> i128 {
+    x.checked_div_euclid(d).unwrap_or(0)
+}
+
+/// `ceil(x / d)` for `d > 0`.
+fn ceil_div(x: i128, d: i128) -> i128 {
+    -floor_div(-x, d)
+}
+
+/// The family of `K`-tick speed sequences `w[k] = clamp(c, L[k], U[k])` (module docs),
+/// in the move's direction, all in LSB.
+struct Shape {
+    w0: i128,
+    ve: i128,
+    a: i128,
+    /// `K`.
+    n: i128,
+}
+
+impl Shape {
+    /// `w[k]` for level `c`.
+    fn value(&self, k: i128, c: i128) -> i128 {
+        let ka = k * self.a;
+        let ra = (self.n - k) * self.a;
+        let lower = (self.w0 - ka).max(self.ve - ra);
+        let upper = (self.w0 + ka).min(self.ve + ra);
+        c.max(lower).min(upper)
+    }
+
+    /// `Σ_{k=1}^{K-1} w[k]`: affine in `k` between the floors of six break points, so
+    /// each piece is an arithmetic series summed from its end values.
+    fn sum(&self, c: i128) -> i128 {
+        let last = self.n - 1;
+        if last < 1 {
+            return 0;
+        }
+        let a = self.a;
+        let na = self.n * a;
+        let mut splits = [
+            floor_div(self.w0 - c, a),
+            floor_div(c - self.w0, a),
+            floor_div(na - self.ve + c, a),
+            floor_div(na + self.ve - c, a),
+            floor_div(self.w0 - self.ve + na, 2 * a),
+            floor_div(self.ve - self.w0 + na, 2 * a),
+        ];
+        splits.sort_unstable();
+        let mut first = 1;
+        let mut total = 0;
+        for f in splits {
+            if f >= first && f < last {
+                total += self.piece(first, f, c);
+                first = f + 1;
+            }
+        }
+        total + self.piece(first, last, c)
+    }
+
+    /// Sum of `w[k]` for `k` in `first..=last`, where it is affine in `k`.
+    fn piece(&self, first: i128, last: i128, c: i128) -> i128 {
+        // count * (w_first + w_last) is even for an integer arithmetic series.
+        (last - first + 1) * (self.value(first, c) + self.value(last, c)) / 2
+    }
+
+    /// The interior ticks at the level: `{k : L[k] ≤ c < U[k]}` is `first..=last`
+    /// (empty when `first > last`). Moving `c` by one LSB moves exactly these.
+    fn at_level(&self, c: i128) -> (i128, i128) {
+        let a = self.a;
+        let na = self.n * a;
+        let first = 1
+            .max(ceil_div(self.w0 - c, a))
+            .max(floor_div(c - self.w0, a) + 1);
+        let last = (self.n - 1)
+            .min(floor_div(c - self.ve + na, a))
+            .min(ceil_div(self.ve - c + na, a) - 1);
+        (first, last)
+    }
+
+    /// Number of ticks at the level (the slope of `sum` just above `c`).
+    fn slope(&self, c: i128) -> i128 {
+        let (first, last) = self.at_level(c);
+        (last - first + 1).max(0)
+    }
+}
+
+/// A solved plan.
+struct Solution {
+    ticks: u64,
+    level: i128,
+    bump_from: u64,
+    bump: u64,
+}
+
+/// Smallest `K ≥ from` (up to [`MAX_TICKS`]) for which `fits(K)`, assuming `fits` is
+/// false then true along `K`.
+fn first_fit(from: i128, fits: impl Fn(i128) -> bool) -> Result<i128, Error> {
+    let max = i128::from(MAX_TICKS);
+    if from > max {
+        return Err(Error::OutOfRange);
+    }
+    if fits(from) {
+        return Ok(from);
+    }
+    let mut lo = from;
+    let mut stride = 1;
+    let mut hi = loop {
+        let hi = (lo + stride).min(max);
+        if fits(hi) {
+            break hi;
+        }
+        if hi == max {
+            return Err(Error::OutOfRange);
+        }
+        lo = hi;
+        stride *= 2;
+    };
+    while hi - lo > 1 {
+        let mid = lo + (hi - lo) / 2;
+        if fits(mid) {
+            hi = mid;
+        } else {
+            lo = mid;
+        }
+    }
+    Ok(hi)
+}
+
+/// Plans the interior sum `m` (module docs): smallest `K`, then the level and the bump.
+fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128) -> Result<Solution, Error> {
+    let shape = |n| Shape { w0, ve, a, n };
+    let k_min = ceil_div((w0 - ve).abs(), a).max(1);
+    let n_up = first_fit(k_min, |n| shape(n).sum(vc) >= m)?;
+    let (n, floor) = if shape(n_up).sum(0) <= m {
+        (n_up, 0)
+    } else if ve > 0 {
+        // Would need to reverse to arrive at a non-zero end speed.
+        return Err(Error::OutOfRange);
+    } else {
+        (first_fit(n_up, |n| shape(n).sum(-vc) <= m)?, -vc)
+    };
+    let sh = shape(n);
+    // Largest level c in [floor, vc] with sum(c) <= m; sum(floor) <= m <= sum(vc).
+    let level = if sh.sum(vc) <= m {
+        vc
+    } else {
+        let (mut lo, mut hi) = (floor, vc);
+        let mut s_lo = sh.sum(lo);
+        let mut newton = true;
+        while hi - lo > 1 {
+            let slope = sh.slope(lo);
+            if m - s_lo < slope {
+                break; // sum(lo + 1) = s_lo + slope > m
+            }
+            let width = hi - lo;
+            let mut cand = if newton && slope > 0 {
+                lo + (m - s_lo) / slope
+            } else {
+                lo + width / 2
+            };
+            if cand <= lo || cand >= hi {
+                cand = lo + width / 2;
+            }
+            let s = sh.sum(cand);
+            if s <= m {
+                lo = cand;
+                s_lo = s;
+            } else {
+                hi = cand;
+            }
+            newton = 2 * (hi - lo) <= width;
+        }
+        lo
+    };
+    let bump = m - sh.sum(level);
+    let (bump_from, _) = sh.at_level(level);
+    Ok(Solution {
+        ticks: u64::try_from(n).map_err(|_| Error::OutOfRange)?,
+        level,
+        bump_from: u64::try_from(bump_from.max(0)).map_err(|_| Error::OutOfRange)?,
+        bump: u64::try_from(bump).map_err(|_| Error::OutOfRange)?,
+    })
+}
