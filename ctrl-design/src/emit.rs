@@ -1,1 +1,1381 @@
-//! (module emit: work in progress, see DEVELOPERS.md)
+//! Design file in, checked firmware constants out.
+//!
+//! [`emit`] reads a [design file](crate::design_file), identifies each axis' plant from its
+//! logs when the file names logs, designs the position loop (PD by pole placement or phase
+//! lead), runs every design check, converts the design into the firmware's units (encoder
+//! counts and ticks, see `DEVELOPERS.md`), quantizes each constant into the fixed-point
+//! format that holds it and writes Rust source of typed `const` items built with
+//! `ctrl-core`'s `const fn` constructors.
+//!
+//! It refuses to emit when a check fails or a constant would pick up more than 0.1 % of
+//! relative error in fixed point. The output is deterministic: the same design file and logs
+//! give the same bytes (no time stamps, no absolute paths).
+//!
+//! A firmware `build.rs` calls [`build_script`]:
+//!
+//! ```no_run
+//! // build.rs
+//! ctrl_design::emit::build_script("../greenhouse-rover/rover.toml");
+//! ```
+//!
+//! and the firmware includes the result with
+//! `include!(concat!(env!("OUT_DIR"), "/constants.rs"));`.
+
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+use crate::analysis::{self, DerivativeOn, LeadCoeffs, ResponseReport, SettlingBand};
+use crate::design_file::{
+    Axis, AxisDesign, DesignError, DesignErrors, DesignFile, LoopTarget, PlantSource,
+};
+use crate::identify::{self, Identification, Log};
+use crate::Plant;
+
+/// Largest relative quantization error any emitted constant may have, percent.
+pub const QUANTIZATION_LIMIT_PCT: f64 = 0.1;
+
+/// Largest phase lead one lead stage is asked for, degrees (beyond it `alpha` gets so small
+/// that noise gain explodes; common practice, no source).
+pub const MAX_LEAD_DEG: f64 = 60.0;
+
+/// The position-loop gains of one axis, in the axis' user units (mm or rad, seconds).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Gains {
+    /// PD: `u = kp e + kd de/dt`.
+    Pd {
+        /// V per unit.
+        kp: f64,
+        /// V per unit/s.
+        kd: f64,
+        /// Natural frequency the gains place, rad/s.
+        natural_frequency_rad_s: f64,
+    },
+    /// Lead `Kc (T1 s + 1) / (alpha T1 s + 1)` and its Tustin coefficients.
+    Lead {
+        /// V per unit.
+        kc: f64,
+        /// Pole/zero ratio, in (0, 1).
+        alpha: f64,
+        /// Zero time constant, s.
+        t1: f64,
+        /// Phase lead supplied at the crossover, degrees.
+        lead_deg: f64,
+        /// Discrete coefficients (V per unit; `a1` dimensionless).
+        coeffs: LeadCoeffs,
+    },
+}
+
+/// One design check and how it came out.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Check {
+    /// The axis it is about (`None`: the whole design).
+    pub axis: Option<&'static str>,
+    /// Short name (`kd_not_negative`, `discrete_stable`, ...).
+    pub name: &'static str,
+    /// The quantity checked.
+    pub value: f64,
+    /// Its limit.
+    pub limit: f64,
+    /// Unit of both.
+    pub unit: &'static str,
+    /// Whether it passed.
+    pub passed: bool,
+    /// A failed check with `warning` set does not stop the emitter.
+    pub warning: bool,
+    /// What the check says, in words (including the fix when it failed).
+    pub detail: String,
+}
+
+/// The design of one axis in user units, with its analysis.
+#[derive(Debug, Clone)]
+pub struct AxisReport {
+    /// Which axis.
+    pub axis: Axis,
+    /// The plant used.
+    pub plant: Plant,
+    /// The identification, when the plant came from logs.
+    pub identification: Option<Identification>,
+    /// The logs it came from (same order as `identification.per_log`).
+    pub logs: Vec<Log>,
+    /// Position-loop gains.
+    pub gains: Gains,
+    /// Continuous and discrete response (derivative on error for PD).
+    pub response: ResponseReport,
+    /// Peak voltage of a full-speed move (feedforward), V.
+    pub peak_move_volts: f64,
+    /// Counts per user unit.
+    pub counts_per_unit: f64,
+}
+
+/// A constant as emitted: the design value, its fixed-point form and the error.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Constant {
+    /// Name, for example `forward.kp`.
+    pub name: String,
+    /// Fixed-point type (`Coeff`, `I16F16`, `I32F32`, `u16`, `u32`).
+    pub format: &'static str,
+    /// The exact design value in firmware units.
+    pub value: f64,
+    /// The value the bits stand for.
+    pub quantized: f64,
+    /// `|quantized - value| / |value|` (0 for 0).
+    pub rel_err: f64,
+    /// Firmware unit (`V/count`, ...).
+    pub unit: &'static str,
+    /// The same value in user units, in words.
+    pub user_value: String,
+    /// The Rust expression.
+    pub expr: String,
+    /// Design-file key it derives from (for errors).
+    pub key: String,
+}
+
+/// Everything one emission produced.
+#[derive(Debug, Clone)]
+pub struct Emission {
+    /// The design file.
+    pub design: DesignFile,
+    /// Forward and rotation.
+    pub axes: Vec<AxisReport>,
+    /// Every check, passed or not.
+    pub checks: Vec<Check>,
+    /// Every constant.
+    pub constants: Vec<Constant>,
+    /// Warnings (identification warnings, failed warning-level checks).
+    pub warnings: Vec<String>,
+    /// The generated Rust source.
+    pub source: String,
+    /// Every file read (design file, log directories and logs).
+    pub inputs: Vec<PathBuf>,
+}
+
+/// Why nothing was emitted: the errors (each with file, line, key and valid range) and the
+/// files read before stopping (a build script still watches them).
+#[derive(Debug, Clone)]
+pub struct EmitFailure {
+    /// The errors, at least one.
+    pub errors: Vec<DesignError>,
+    /// Files read so far.
+    pub inputs: Vec<PathBuf>,
+    /// Checks run so far (passed and failed).
+    pub checks: Vec<Check>,
+}
+
+impl std::fmt::Display for EmitFailure {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}", DesignErrors(self.errors.clone()))
+    }
+}
+
+impl std::error::Error for EmitFailure {}
+
+/// Reads, identifies, designs, checks, quantizes and renders `design_path`.
+pub fn emit(design_path: &Path) -> Result<Emission, EmitFailure> {
+    let design = DesignFile::load(design_path).map_err(|e| EmitFailure {
+        errors: e.0,
+        inputs: vec![design_path.to_path_buf()],
+        checks: Vec::new(),
+    })?;
+    let inputs = design.inputs();
+    let fail = |errors: Vec<DesignError>, checks: Vec<Check>| EmitFailure {
+        errors,
+        inputs: inputs.clone(),
+        checks,
+    };
+
+    let mut errors = Vec::new();
+    let mut warnings = Vec::new();
+    let mut checks = Vec::new();
+    let mut axes = Vec::new();
+    for axis in Axis::BOTH {
+        match design_axis(&design, design.axis(axis), &mut checks, &mut warnings) {
+            Ok(r) => axes.push(r),
+            Err(mut e) => errors.append(&mut e),
+        }
+    }
+    if !errors.is_empty() {
+        return Err(fail(errors, checks));
+    }
+    for c in &checks {
+        if !c.passed && !c.warning {
+            let key = check_key(&design, c);
+            errors.push(design.error(&key, c.detail.clone(), None));
+        } else if !c.passed {
+            warnings.push(format!(
+                "{}{}: {}",
+                c.axis.map(|a| format!("{a}: ")).unwrap_or_default(),
+                c.name,
+                c.detail
+            ));
+        }
+    }
+    if !errors.is_empty() {
+        return Err(fail(errors, checks));
+    }
+
+    let constants = match constants(&design, &axes) {
+        Ok(c) => c,
+        Err(e) => return Err(fail(e, checks)),
+    };
+    let limit = design.checks.max_quantization_error_pct / 100.0;
+    for c in &constants {
+        if c.rel_err > limit {
+            errors.push(design.error(
+                &c.key,
+                format!(
+                    "constant {} = {} {} would be stored as {} ({}): relative error {:.4} % is above the limit",
+                    c.name,
+                    sig(c.value),
+                    c.unit,
+                    sig(c.quantized),
+                    c.format,
+                    c.rel_err * 100.0
+                ),
+                Some(format!(
+                    "quantization error at most {} % (checks.max_quantization_error_pct)",
+                    design.checks.max_quantization_error_pct
+                )),
+            ));
+        }
+    }
+    if !errors.is_empty() {
+        return Err(fail(errors, checks));
+    }
+    let source = render(&design, &axes, &checks, &constants);
+    Ok(Emission {
+        design,
+        axes,
+        checks,
+        constants,
+        warnings,
+        source,
+        inputs,
+    })
+}
+
+/// The design-file key a failed check points at.
+fn check_key(design: &DesignFile, c: &Check) -> String {
+    let axis = c.axis.unwrap_or("drive");
+    let loop_key = |name: &str| format!("{axis}.loop.{name}");
+    let target = |a: &str| {
+        let ax = if a == "forward" {
+            Axis::Forward
+        } else {
+            Axis::Rotation
+        };
+        design.axis(ax).target
+    };
+    match c.name {
+        "kd_not_negative" => loop_key("settling_time_s"),
+        "lead_feasible" => loop_key("phase_margin_deg"),
+        "discrete_stable" | "overshoot" | "rate_ratio" => match c.axis.map(target) {
+            Some(LoopTarget::Lead { .. }) => loop_key("crossover_rad_s"),
+            _ => loop_key("settling_time_s"),
+        },
+        "peak_move_volts" => format!("{axis}.move.accel"),
+        "derivative_chatter" => match c.axis.map(target) {
+            Some(LoopTarget::Lead { .. }) => loop_key("crossover_rad_s"),
+            _ => loop_key("settling_time_s"),
+        },
+        "stall_guard_ticks" => format!("{axis}.stall_guard.max_time_s"),
+        "stall_guard_margin" => format!("{axis}.stall_guard.max_tracking_error"),
+        _ => format!("{axis}.loop"),
+    }
+}
+
+fn identify_axis(
+    design: &DesignFile,
+    a: &AxisDesign,
+) -> Result<(Plant, Option<Identification>, Vec<Log>), Vec<DesignError>> {
+    match &a.plant {
+        PlantSource::Given(p) => Ok((*p, None, Vec::new())),
+        PlantSource::Logs {
+            files,
+            position_column,
+            ..
+        } => {
+            let key = format!("{}.plant.logs", a.axis.name());
+            let columns = identify::Columns {
+                position: position_column.clone(),
+                ..identify::Columns::default()
+            };
+            let mut logs = Vec::new();
+            let mut errors = Vec::new();
+            for f in files {
+                match Log::from_file(f, &columns) {
+                    Ok(l) => logs.push(l),
+                    Err(e) => errors.push(design.error(
+                        &key,
+                        format!("log {}: {e}", f.display()),
+                        Some("a CSV log with columns time_s, volts and position".into()),
+                    )),
+                }
+            }
+            if !errors.is_empty() {
+                return Err(errors);
+            }
+            let opts = identify::Options {
+                unit: a.axis.unit().to_string(),
+                ..identify::Options::default()
+            };
+            let id = identify::identify(&logs, &opts).map_err(|e| {
+                vec![design.error(
+                    &key,
+                    format!("cannot identify the plant: {e}"),
+                    Some("step logs that reach steady speed, at several voltages".into()),
+                )]
+            })?;
+            Ok((id.plant, Some(id), logs))
+        }
+    }
+}
+
+/// PD by pole placement: `wn = c / (zeta ts)`, `Kp = wn^2 T / K`, `Kd = (2 zeta wn T - 1) / K`.
+fn pd_gains(plant: &Plant, damping: f64, settling_time_s: f64, band_pct: f64) -> (f64, f64, f64) {
+    let c = SettlingBand { percent: band_pct }.factor();
+    let wn = c / (damping * settling_time_s);
+    let t = plant.time_constant_s;
+    let kp = wn * wn * t / plant.gain;
+    let kd = (2.0 * damping * wn * t - 1.0) / plant.gain;
+    (kp, kd, wn)
+}
+
+fn design_axis(
+    design: &DesignFile,
+    a: &AxisDesign,
+    checks: &mut Vec<Check>,
+    warnings: &mut Vec<String>,
+) -> Result<AxisReport, Vec<DesignError>> {
+    let name = a.axis.name();
+    let unit = a.axis.unit();
+    let (plant, identification, logs) = identify_axis(design, a)?;
+    if let Some(id) = &identification {
+        for w in &id.warnings {
+            warnings.push(format!("{name}: identification: {w}"));
+        }
+    }
+    let rate = design.drive.loop_rate_hz;
+    let cpu = design.drive.counts_per_unit(a.axis);
+    let count_size = 1.0 / cpu;
+    let mut check = |name_: &'static str,
+                     value: f64,
+                     limit: f64,
+                     unit_: &'static str,
+                     passed: bool,
+                     warning: bool,
+                     detail: String| {
+        checks.push(Check {
+            axis: Some(name),
+            name: name_,
+            value,
+            limit,
+            unit: unit_,
+            passed,
+            warning,
+            detail,
+        });
+    };
+
+    let (gains, response, band) = match a.target {
+        LoopTarget::Pd {
+            damping,
+            settling_time_s,
+            band_pct,
+        } => {
+            let (kp, kd, wn) = pd_gains(&plant, damping, settling_time_s, band_pct);
+            let band = SettlingBand { percent: band_pct };
+            // Kd >= 0 needs wn >= 1 / (2 zeta T), that is ts <= 2 c T.
+            let ts_max = 2.0 * band.factor() * plant.time_constant_s;
+            let ok = kd >= 0.0;
+            check(
+                "kd_not_negative",
+                kd,
+                0.0,
+                "V per unit/s",
+                ok,
+                false,
+                if ok {
+                    format!("Kd = {} V per {unit}/s", sig(kd))
+                } else {
+                    format!(
+                        "settling_time_s = {settling_time_s} s makes Kd = {} V per {unit}/s negative \
+                         (the drive's own time constant {} s already settles faster); the longest \
+                         settling time for this plant is {} s",
+                        sig(kd),
+                        sig(plant.time_constant_s),
+                        sig(ts_max)
+                    )
+                },
+            );
+            if !ok {
+                return Err(vec![design.error(
+                    &format!("{name}.loop.settling_time_s"),
+                    format!(
+                        "{settling_time_s} s makes Kd = {} V per {unit}/s negative (plant T = {} s)",
+                        sig(kd),
+                        sig(plant.time_constant_s)
+                    ),
+                    Some(format!(
+                        "at most {} s for this plant (2 x {} x T with the {band_pct} % band)",
+                        sig(ts_max),
+                        band.factor()
+                    )),
+                )]);
+            }
+            let response =
+                analysis::report_pd(&plant, kp, kd, Some(rate), band, DerivativeOn::Error);
+            (
+                Gains::Pd {
+                    kp,
+                    kd,
+                    natural_frequency_rad_s: wn,
+                },
+                response,
+                band,
+            )
+        }
+        LoopTarget::Lead {
+            crossover_rad_s: wc,
+            phase_margin_deg: pm,
+        } => {
+            let t = plant.time_constant_s;
+            // Plant phase at wc: -90 - atan(wc T) deg; the lead must supply the rest.
+            let lead_deg = pm - 90.0 + (wc * t).atan().to_degrees();
+            let ok = lead_deg > 0.0 && lead_deg <= MAX_LEAD_DEG;
+            check(
+                "lead_feasible",
+                lead_deg,
+                MAX_LEAD_DEG,
+                "deg",
+                ok,
+                false,
+                if ok {
+                    format!("needs {} deg of lead", sig(lead_deg))
+                } else if lead_deg <= 0.0 {
+                    format!(
+                        "the plant alone already has {} deg of phase margin at {wc} rad/s; no lead is needed (use kind = \"pd\")",
+                        sig(pm - lead_deg)
+                    )
+                } else {
+                    format!(
+                        "needs {} deg of lead at {wc} rad/s, more than one stage gives ({MAX_LEAD_DEG} deg); lower the crossover or the phase margin",
+                        sig(lead_deg)
+                    )
+                },
+            );
+            if !ok {
+                return Err(vec![design.error(
+                    &format!("{name}.loop.phase_margin_deg"),
+                    format!("{pm} deg at {wc} rad/s needs {} deg of lead", sig(lead_deg)),
+                    Some(format!("a needed lead in (0, {MAX_LEAD_DEG}] deg")),
+                )]);
+            }
+            let s = lead_deg.to_radians().sin();
+            let alpha = (1.0 - s) / (1.0 + s);
+            let t1 = 1.0 / (wc * alpha.sqrt());
+            let plant_mag = plant.gain / (wc * (1.0 + (wc * t).powi(2)).sqrt());
+            let kc = alpha.sqrt() / plant_mag;
+            let coeffs = analysis::lead_tustin(kc, alpha, t1, rate, Some(wc));
+            let band = SettlingBand::TWO_PERCENT;
+            let response = analysis::report_lead(&plant, kc, alpha, t1, Some(rate), Some(wc), band);
+            (
+                Gains::Lead {
+                    kc,
+                    alpha,
+                    t1,
+                    lead_deg,
+                    coeffs,
+                },
+                response,
+                band,
+            )
+        }
+    };
+    let _ = band;
+
+    // The discrete loop with one tick of computation delay is what the firmware runs.
+    let delayed = response
+        .discrete_delayed
+        .clone()
+        .unwrap_or_else(|| response.continuous.clone());
+    let mag = delayed.max_pole_magnitude.unwrap_or(f64::NAN);
+    let stable = delayed.stable && mag < 1.0;
+    check(
+        "discrete_stable",
+        mag,
+        1.0,
+        "pole magnitude",
+        stable,
+        false,
+        if stable {
+            format!(
+                "largest closed-loop pole magnitude {} (with one tick of delay)",
+                sig(mag)
+            )
+        } else {
+            format!(
+                "the discrete loop with one tick of delay is unstable (largest pole magnitude {}); lengthen the settling time or raise the loop rate",
+                sig(mag)
+            )
+        },
+    );
+    let overshoot = delayed.overshoot_pct.unwrap_or(0.0);
+    let max_os = design.checks.max_overshoot_pct;
+    let ok = stable && overshoot <= max_os;
+    check(
+        "overshoot",
+        overshoot,
+        max_os,
+        "%",
+        ok,
+        false,
+        if ok {
+            format!(
+                "{} % overshoot (discrete, one tick of delay)",
+                sig(overshoot)
+            )
+        } else {
+            format!(
+                "the discrete loop overshoots {} % (limit checks.max_overshoot_pct = {max_os} %); raise the damping",
+                sig(overshoot)
+            )
+        },
+    );
+
+    // Loop rate against closed-loop bandwidth.
+    let bw_hz =
+        response.continuous.bandwidth_rad_s.unwrap_or(f64::NAN) / (2.0 * std::f64::consts::PI);
+    let ratio = rate / bw_hz;
+    let min_ratio = design.checks.min_rate_ratio;
+    let ok = ratio >= min_ratio;
+    check(
+        "rate_ratio",
+        ratio,
+        min_ratio,
+        "x bandwidth",
+        ok,
+        false,
+        if ok {
+            format!(
+                "loop rate {rate} Hz is {}x the closed-loop bandwidth {} Hz",
+                sig(ratio),
+                sig(bw_hz)
+            )
+        } else {
+            format!(
+                "loop rate {rate} Hz is only {}x the closed-loop bandwidth {} Hz (at least {min_ratio}x); raise drive.loop_rate_hz or slow the loop",
+                sig(ratio),
+                sig(bw_hz)
+            )
+        },
+    );
+
+    // Voltage step one encoder count causes through the derivative path.
+    let step_volts = match gains {
+        Gains::Pd { kd, .. } => kd * rate * count_size,
+        Gains::Lead { coeffs, .. } => coeffs.b0.abs() * count_size,
+    };
+    let share = design.checks.max_chatter_share;
+    let limit = share * design.supply.lowest_volts;
+    let ok = step_volts <= limit;
+    let suggestion = match gains {
+        Gains::Pd { .. } => "use kind = \"lead\" (a derivative with a low-pass), lengthen the settling time, or use a finer encoder",
+        Gains::Lead { .. } => "lower the crossover or use a finer encoder",
+    };
+    check(
+        "derivative_chatter",
+        step_volts,
+        limit,
+        "V per count",
+        ok,
+        false,
+        if ok {
+            format!(
+                "one encoder count ({} {unit}) steps the voltage by {} V ({} % of the lowest supply)",
+                sig(count_size),
+                sig(step_volts),
+                sig(100.0 * step_volts / design.supply.lowest_volts)
+            )
+        } else {
+            format!(
+                "one encoder count ({} {unit}) steps the voltage by {} V, more than {} x {} V = {} V; {suggestion}",
+                sig(count_size),
+                sig(step_volts),
+                share,
+                design.supply.lowest_volts,
+                sig(limit)
+            )
+        },
+    );
+
+    // Peak feedforward voltage of a full-speed move at the lowest supply.
+    let peak = plant.bias_volts
+        + a.moves.cruise_speed / plant.gain
+        + plant.time_constant_s * a.moves.accel / plant.gain;
+    let low = design.supply.lowest_volts;
+    let ok = peak <= low;
+    check(
+        "peak_move_volts",
+        peak,
+        low,
+        "V",
+        ok,
+        false,
+        if ok {
+            format!(
+                "a {} {unit}/s move at {} {unit}/s^2 needs {} V (lowest supply {low} V)",
+                a.moves.cruise_speed,
+                a.moves.accel,
+                sig(peak)
+            )
+        } else {
+            format!(
+                "a {} {unit}/s move at {} {unit}/s^2 needs {} V = bias + speed/K + T accel/K, above the lowest supply {low} V; lower the cruise speed or acceleration",
+                a.moves.cruise_speed,
+                a.moves.accel,
+                sig(peak)
+            )
+        },
+    );
+
+    // Stall guard: its time must fit the u16 tick counter.
+    let ticks = (a.stall.max_time_s * rate).round();
+    let ok = (1.0..=f64::from(u16::MAX)).contains(&ticks);
+    check(
+        "stall_guard_ticks",
+        ticks,
+        f64::from(u16::MAX),
+        "ticks",
+        ok,
+        false,
+        if ok {
+            format!("trips after {ticks} ticks over the limit")
+        } else {
+            format!(
+                "max_time_s = {} s is {ticks} ticks at {rate} Hz; the guard counts 1 to 65535 ticks",
+                a.stall.max_time_s
+            )
+        },
+    );
+
+    Ok(AxisReport {
+        axis: a.axis,
+        plant,
+        identification,
+        logs,
+        gains,
+        response,
+        peak_move_volts: peak,
+        counts_per_unit: cpu,
+    })
+}
+
+// ---------------------------------------------------------------------------------------
+// Quantization
+
+/// `x` as a `Coeff`: expression, stored value and relative error.
+fn q_coeff(x: f64) -> Result<(String, f64, f64), String> {
+    let (c, rel) = ctrl_core::Coeff::from_f64(x).map_err(|e| format!("{e}"))?;
+    Ok((
+        format!(
+            "::ctrl_core::Coeff::from_bits({}, {})",
+            c.mantissa(),
+            c.shift()
+        ),
+        c.to_f64(),
+        rel,
+    ))
+}
+
+/// `x` in a signed fixed-point format with `frac` fraction bits and `bits` total bits.
+fn q_fixed(x: f64, frac: u32, bits: u32, ty: &str) -> Result<(String, f64, f64), String> {
+    let scale = (frac as f64).exp2();
+    let raw = (x * scale).round();
+    let max = ((bits - 1) as f64).exp2();
+    if !raw.is_finite() || raw >= max || raw < -max {
+        return Err(format!("{} does not fit {ty}", sig(x)));
+    }
+    let q = raw / scale;
+    let rel = if x == 0.0 { 0.0 } else { ((q - x) / x).abs() };
+    Ok((
+        format!("::fixed::types::{ty}::from_bits({})", raw as i64),
+        q,
+        rel,
+    ))
+}
+
+fn q_int(x: f64, max: f64, ty: &str) -> Result<(String, f64, f64), String> {
+    let r = x.round();
+    if !(0.0..=max).contains(&r) {
+        return Err(format!("{} does not fit {ty}", sig(x)));
+    }
+    let rel = if x == 0.0 { 0.0 } else { ((r - x) / x).abs() };
+    Ok((format!("{}", r as u64), r, rel))
+}
+
+struct Builder<'a> {
+    design: &'a DesignFile,
+    out: Vec<Constant>,
+    errors: Vec<DesignError>,
+}
+
+impl Builder<'_> {
+    #[allow(clippy::too_many_arguments)]
+    fn add(
+        &mut self,
+        name: String,
+        format: &'static str,
+        value: f64,
+        unit: &'static str,
+        user_value: String,
+        key: &str,
+    ) -> String {
+        let r = match format {
+            "Coeff" => q_coeff(value),
+            "I16F16" => q_fixed(value, 16, 32, "I16F16"),
+            "I32F32" => q_fixed(value, 32, 64, "I32F32"),
+            "u16" => q_int(value, f64::from(u16::MAX), "u16"),
+            "u32" => q_int(value, f64::from(u32::MAX), "u32"),
+            _ => Err(format!("unknown format {format}")),
+        };
+        match r {
+            Ok((expr, quantized, rel_err)) => {
+                self.out.push(Constant {
+                    name,
+                    format,
+                    value,
+                    quantized,
+                    rel_err,
+                    unit,
+                    user_value,
+                    expr: expr.clone(),
+                    key: key.to_string(),
+                });
+                expr
+            }
+            Err(e) => {
+                self.errors.push(self.design.error(
+                    key,
+                    format!(
+                        "constant {name} = {} {unit} cannot be stored: {e}",
+                        sig(value)
+                    ),
+                    Some(format!("a value the {format} format holds")),
+                ));
+                "0".to_string()
+            }
+        }
+    }
+}
+
+/// Every constant the firmware gets, in firmware units.
+fn constants(design: &DesignFile, axes: &[AxisReport]) -> Result<Vec<Constant>, Vec<DesignError>> {
+    let mut b = Builder {
+        design,
+        out: Vec::new(),
+        errors: Vec::new(),
+    };
+    let rate = design.drive.loop_rate_hz;
+    b.add(
+        "loop_rate_hz".into(),
+        "u32",
+        rate,
+        "Hz",
+        format!("{rate} Hz"),
+        "drive.loop_rate_hz",
+    );
+    b.add(
+        "counts_per_mm".into(),
+        "I32F32",
+        design.drive.counts_per_mm(),
+        "count/mm",
+        format!(
+            "{} counts per {} mm wheel revolution",
+            design.drive.encoder_counts_per_rev, design.drive.wheel_diameter_mm
+        ),
+        "drive.encoder_counts_per_rev",
+    );
+    b.add(
+        "counts_per_rad".into(),
+        "I32F32",
+        design.drive.counts_per_rad(),
+        "count/rad",
+        format!("track width {} mm", design.drive.track_width_mm),
+        "drive.track_width_mm",
+    );
+    for (key, v) in [
+        ("supply.lowest_volts", design.supply.lowest_volts),
+        ("supply.highest_volts", design.supply.highest_volts),
+    ] {
+        b.add(
+            key.replace('.', "_"),
+            "I16F16",
+            v,
+            "V",
+            format!("{v} V"),
+            key,
+        );
+    }
+    for r in axes {
+        let a = r.axis.name();
+        let u = r.axis.unit();
+        let cpu = r.counts_per_unit;
+        let ad = design.axis(r.axis);
+        let loop_key = format!("{a}.loop");
+        match r.gains {
+            Gains::Pd { kp, kd, .. } => {
+                b.add(
+                    format!("{a}.kp"),
+                    "Coeff",
+                    kp / cpu,
+                    "V/count",
+                    format!("{} V/{u}", sig(kp)),
+                    &loop_key,
+                );
+                b.add(
+                    format!("{a}.kd_per_tick"),
+                    "Coeff",
+                    kd * rate / cpu,
+                    "V per count/tick",
+                    format!("Kd {} V per {u}/s, times {rate} Hz", sig(kd)),
+                    &loop_key,
+                );
+            }
+            Gains::Lead { coeffs, .. } => {
+                b.add(
+                    format!("{a}.lead_b0"),
+                    "Coeff",
+                    coeffs.b0 / cpu,
+                    "V/count",
+                    format!("{} V/{u}", sig(coeffs.b0)),
+                    &loop_key,
+                );
+                b.add(
+                    format!("{a}.lead_b1"),
+                    "Coeff",
+                    coeffs.b1 / cpu,
+                    "V/count",
+                    format!("{} V/{u}", sig(coeffs.b1)),
+                    &loop_key,
+                );
+                b.add(
+                    format!("{a}.lead_a1"),
+                    "Coeff",
+                    coeffs.a1,
+                    "1",
+                    sig(coeffs.a1),
+                    &loop_key,
+                );
+            }
+        }
+        let p = r.plant;
+        let pk = format!("{a}.plant");
+        b.add(
+            format!("{a}.kv"),
+            "Coeff",
+            rate / (p.gain * cpu),
+            "V per count/tick",
+            format!("1/K = {} V per {u}/s", sig(1.0 / p.gain)),
+            &pk,
+        );
+        b.add(
+            format!("{a}.ka"),
+            "Coeff",
+            p.time_constant_s * rate * rate / (p.gain * cpu),
+            "V per count/tick^2",
+            format!("T/K = {} V per {u}/s^2", sig(p.time_constant_s / p.gain)),
+            &pk,
+        );
+        b.add(
+            format!("{a}.bias_volts"),
+            "I16F16",
+            p.bias_volts,
+            "V",
+            format!("{} V", sig(p.bias_volts)),
+            &pk,
+        );
+        b.add(
+            format!("{a}.stall_limit"),
+            "I16F16",
+            ad.stall.max_tracking_error * cpu,
+            "count",
+            format!("{} {u}", ad.stall.max_tracking_error),
+            &format!("{a}.stall_guard.max_tracking_error"),
+        );
+        b.add(
+            format!("{a}.stall_ticks"),
+            "u16",
+            ad.stall.max_time_s * rate,
+            "tick",
+            format!("{} s", ad.stall.max_time_s),
+            &format!("{a}.stall_guard.max_time_s"),
+        );
+        b.add(
+            format!("{a}.cruise_speed"),
+            "I32F32",
+            ad.moves.cruise_speed * cpu / rate,
+            "count/tick",
+            format!("{} {u}/s", ad.moves.cruise_speed),
+            &format!("{a}.move.cruise_speed"),
+        );
+        b.add(
+            format!("{a}.accel"),
+            "I32F32",
+            ad.moves.accel * cpu / (rate * rate),
+            "count/tick^2",
+            format!("{} {u}/s^2", ad.moves.accel),
+            &format!("{a}.move.accel"),
+        );
+        // The plant in firmware units, for on-target simulation and monitoring.
+        let t_ticks = p.time_constant_s * rate;
+        let decay = (-1.0 / t_ticks).exp();
+        b.add(
+            format!("{a}.plant_gain"),
+            "Coeff",
+            p.gain * cpu / rate,
+            "count/tick per V",
+            format!("K = {} {u}/s per V", sig(p.gain)),
+            &pk,
+        );
+        b.add(
+            format!("{a}.plant_decay"),
+            "Coeff",
+            decay,
+            "1",
+            format!("exp(-tick / T), T = {} s", sig(p.time_constant_s)),
+            &pk,
+        );
+        b.add(
+            format!("{a}.plant_lag_ticks"),
+            "Coeff",
+            t_ticks * (1.0 - decay),
+            "tick",
+            format!(
+                "T (1 - exp(-tick / T)) = {} s",
+                sig(p.time_constant_s * (1.0 - decay))
+            ),
+            &pk,
+        );
+    }
+    if b.errors.is_empty() {
+        Ok(b.out)
+    } else {
+        Err(b.errors)
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// Rendering
+
+/// `x` with 6 significant digits, without exponent for ordinary magnitudes.
+pub fn sig(x: f64) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let mag = x.abs().log10().floor() as i32;
+    if !(-5..=6).contains(&mag) {
+        return format!("{x:.5e}");
+    }
+    let decimals = (5 - mag).max(0) as usize;
+    let s = format!("{x:.decimals$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+fn find<'a>(constants: &'a [Constant], name: &str) -> &'a Constant {
+    constants
+        .iter()
+        .find(|c| c.name == name)
+        .unwrap_or_else(|| unreachable!("constant {name} was built"))
+}
+
+/// One argument line: expression and its comment.
+fn arg(c: &Constant) -> String {
+    format!(
+        "{}, // {} = {} {} ({}); quantization error {} %",
+        c.expr,
+        c.name,
+        sig(c.quantized),
+        c.unit,
+        c.user_value,
+        sig(c.rel_err * 100.0)
+    )
+}
+
+fn file_label(design: &DesignFile, p: &Path) -> String {
+    let base = design.path.parent().unwrap_or(Path::new(""));
+    p.strip_prefix(base)
+        .unwrap_or(p)
+        .to_string_lossy()
+        .replace('\\', "/")
+}
+
+fn render(
+    design: &DesignFile,
+    axes: &[AxisReport],
+    checks: &[Check],
+    constants: &[Constant],
+) -> String {
+    let mut s = String::new();
+    let file = design
+        .path
+        .file_name()
+        .map(|f| f.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let w = &mut s;
+    let _ = writeln!(
+        w,
+        "// Generated by ctrl-design {} (ctrl_design::emit) from the design file `{file}`.",
+        env!("CARGO_PKG_VERSION")
+    );
+    let _ = writeln!(
+        w,
+        "// Do not edit: change the design file and rebuild (or run `ctrl-design emit {file}`)."
+    );
+    if let Some(n) = &design.name {
+        let _ = writeln!(w, "// Design: {n}");
+    }
+    let _ = writeln!(
+        w,
+        "// Firmware units: distance in encoder counts, time in ticks (1 tick = 1/{} s).",
+        sig(design.drive.loop_rate_hz)
+    );
+    let _ = writeln!(w, "//");
+    for r in axes {
+        let a = r.axis.name();
+        let u = r.axis.unit();
+        let p = r.plant;
+        let _ = write!(
+            w,
+            "// {a} plant: K = {} {u}/s per V, T = {} s, bias = {} V",
+            sig(p.gain),
+            sig(p.time_constant_s),
+            sig(p.bias_volts)
+        );
+        match &r.identification {
+            Some(id) => {
+                let files: Vec<String> = r
+                    .logs
+                    .iter()
+                    .map(|l| file_label(design, Path::new(&l.name)))
+                    .collect();
+                let _ = writeln!(
+                    w,
+                    ", identified from {} logs (R^2 = {}): {}",
+                    files.len(),
+                    sig(id.r_squared),
+                    files.join(", ")
+                );
+            }
+            None => {
+                let _ = writeln!(w, ", as given");
+            }
+        }
+        match r.gains {
+            Gains::Pd {
+                kp,
+                kd,
+                natural_frequency_rad_s,
+            } => {
+                let _ = writeln!(
+                    w,
+                    "// {a} loop: PD, Kp = {} V/{u}, Kd = {} V per {u}/s (wn = {} rad/s)",
+                    sig(kp),
+                    sig(kd),
+                    sig(natural_frequency_rad_s)
+                );
+            }
+            Gains::Lead {
+                kc,
+                alpha,
+                t1,
+                lead_deg,
+                ..
+            } => {
+                let _ = writeln!(
+                    w,
+                    "// {a} loop: lead, Kc = {} V/{u}, alpha = {}, T1 = {} s ({} deg of lead)",
+                    sig(kc),
+                    sig(alpha),
+                    sig(t1),
+                    sig(lead_deg)
+                );
+            }
+        }
+    }
+    let _ = writeln!(w, "//");
+    let _ = writeln!(w, "// Checks (all passed or warnings only):");
+    for c in checks {
+        let _ = writeln!(
+            w,
+            "//   {:<8} {:<20} {}: {}",
+            c.axis.unwrap_or("design"),
+            c.name,
+            if c.passed { "ok" } else { "WARNING" },
+            c.detail
+        );
+    }
+    let worst = constants
+        .iter()
+        .max_by(|a, b| a.rel_err.total_cmp(&b.rel_err))
+        .map(|c| format!("{} % ({})", sig(c.rel_err * 100.0), c.name))
+        .unwrap_or_default();
+    let _ = writeln!(
+        w,
+        "// Largest quantization error: {worst}; limit {} %.",
+        design.checks.max_quantization_error_pct
+    );
+    let _ = writeln!(w);
+
+    let simple = |w: &mut String, ident: &str, doc: &str, ty: &str, c: &Constant| {
+        let _ = writeln!(w, "/// {doc}");
+        let _ = writeln!(
+            w,
+            "pub const {ident}: {ty} = {}; // {} {} ({}); quantization error {} %",
+            c.expr,
+            sig(c.quantized),
+            c.unit,
+            c.user_value,
+            sig(c.rel_err * 100.0)
+        );
+        let _ = writeln!(w);
+    };
+    simple(
+        w,
+        "LOOP_RATE_HZ",
+        "Loop rate, ticks per second.",
+        "u32",
+        find(constants, "loop_rate_hz"),
+    );
+    simple(
+        w,
+        "COUNTS_PER_MM",
+        "Wheel-arc encoder counts per mm of forward travel.",
+        "::fixed::types::I32F32",
+        find(constants, "counts_per_mm"),
+    );
+    simple(
+        w,
+        "COUNTS_PER_RAD",
+        "Rotation-axis counts per radian of heading.",
+        "::fixed::types::I32F32",
+        find(constants, "counts_per_rad"),
+    );
+    simple(
+        w,
+        "SUPPLY_LOWEST_VOLTS",
+        "Lowest battery voltage the design was checked at, V.",
+        "::fixed::types::I16F16",
+        find(constants, "supply_lowest_volts"),
+    );
+    simple(
+        w,
+        "SUPPLY_HIGHEST_VOLTS",
+        "Highest battery voltage, V (also the wheel voltage cap of `DRIVE`).",
+        "::fixed::types::I16F16",
+        find(constants, "supply_highest_volts"),
+    );
+
+    for r in axes {
+        let a = r.axis.name();
+        let up = a.to_uppercase();
+        let u = r.axis.unit();
+        let _ = writeln!(w, "// ---- {a} axis ({u}) ----");
+        let _ = writeln!(w);
+        let _ = writeln!(w, "/// {a} axis: feedforward, feedback and stall guard.");
+        let _ = writeln!(
+            w,
+            "pub const {up}_AXIS: ::ctrl_core::drive::Axis = ::ctrl_core::drive::Axis::new("
+        );
+        let _ = writeln!(w, "    ::ctrl_core::feedforward::Feedforward::new(");
+        for n in ["kv", "ka", "bias_volts"] {
+            let _ = writeln!(w, "        {}", arg(find(constants, &format!("{a}.{n}"))));
+        }
+        let _ = writeln!(w, "    ),");
+        let high = find(constants, "supply_highest_volts");
+        match r.gains {
+            Gains::Pd { .. } => {
+                let _ = writeln!(
+                    w,
+                    "    ::ctrl_core::drive::Feedback::Pd(::ctrl_core::pd::Pd::new("
+                );
+                for n in ["kp", "kd_per_tick"] {
+                    let _ = writeln!(w, "        {}", arg(find(constants, &format!("{a}.{n}"))));
+                }
+                let _ = writeln!(w, "        ::ctrl_core::pd::Derivative::OnError,");
+            }
+            Gains::Lead { .. } => {
+                let _ = writeln!(
+                    w,
+                    "    ::ctrl_core::drive::Feedback::Lead(::ctrl_core::lead::Lead::new("
+                );
+                for n in ["lead_b0", "lead_b1", "lead_a1"] {
+                    let _ = writeln!(w, "        {}", arg(find(constants, &format!("{a}.{n}"))));
+                }
+            }
+        }
+        let _ = writeln!(
+            w,
+            "        {}, // output clamp = {} V (supply.highest_volts)",
+            high.expr,
+            sig(high.quantized)
+        );
+        let _ = writeln!(w, "    )),");
+        let _ = writeln!(w, "    ::ctrl_core::stall::StallGuard::new(");
+        for n in ["stall_limit", "stall_ticks"] {
+            let _ = writeln!(w, "        {}", arg(find(constants, &format!("{a}.{n}"))));
+        }
+        let _ = writeln!(w, "    ),");
+        let _ = writeln!(w, ");");
+        let _ = writeln!(w);
+        simple(
+            w,
+            &format!("{up}_CRUISE_SPEED"),
+            &format!("{a} cruise speed of a move, counts/tick."),
+            "::fixed::types::I32F32",
+            find(constants, &format!("{a}.cruise_speed")),
+        );
+        simple(
+            w,
+            &format!("{up}_ACCEL"),
+            &format!("{a} acceleration of a move, counts/tick^2."),
+            "::fixed::types::I32F32",
+            find(constants, &format!("{a}.accel")),
+        );
+        simple(
+            w,
+            &format!("{up}_PLANT_GAIN"),
+            &format!("{a} plant gain, counts/tick per volt (for on-target simulation)."),
+            "::ctrl_core::Coeff",
+            find(constants, &format!("{a}.plant_gain")),
+        );
+        simple(
+            w,
+            &format!("{up}_PLANT_DECAY"),
+            &format!("{a} plant speed decay over one tick, exp(-tick/T)."),
+            "::ctrl_core::Coeff",
+            find(constants, &format!("{a}.plant_decay")),
+        );
+        simple(
+            w,
+            &format!("{up}_PLANT_LAG_TICKS"),
+            &format!("{a} plant position lag per tick, T (1 - exp(-tick/T)) in ticks."),
+            "::ctrl_core::Coeff",
+            find(constants, &format!("{a}.plant_lag_ticks")),
+        );
+    }
+    let _ = writeln!(w, "// ---- the whole drive ----");
+    let _ = writeln!(w);
+    let _ = writeln!(
+        w,
+        "/// The two-axis drive: encoders (both counting forward), both axes, supply compensation"
+    );
+    let _ = writeln!(w, "/// and the wheel voltage cap.");
+    let low = find(constants, "supply_lowest_volts");
+    let high = find(constants, "supply_highest_volts");
+    let _ = writeln!(
+        w,
+        "pub const DRIVE: ::ctrl_core::drive::TwoAxisDrive = ::ctrl_core::drive::TwoAxisDrive::new("
+    );
+    let _ = writeln!(w, "    ::ctrl_core::encoder::Encoders::new(false, false),");
+    let _ = writeln!(w, "    FORWARD_AXIS,");
+    let _ = writeln!(w, "    ROTATION_AXIS,");
+    let _ = writeln!(
+        w,
+        "    ::ctrl_core::supply::Supply::new({}), // low-supply flag below {} V",
+        low.expr,
+        sig(low.quantized)
+    );
+    let _ = writeln!(
+        w,
+        "    {}, // wheel voltage cap {} V",
+        high.expr,
+        sig(high.quantized)
+    );
+    let _ = writeln!(w, ");");
+    s
+}
+
+// ---------------------------------------------------------------------------------------
+// build.rs integration
+
+/// For a firmware `build.rs`: emits `design_path` (relative to the crate's manifest folder,
+/// where build scripts run) into `$OUT_DIR/constants.rs`.
+///
+/// Prints `cargo:rerun-if-changed=` for the design file, every log directory and every log,
+/// even when the design fails, so fixing the file reruns the script. On failure it prints
+/// each error (file, line, key, valid range) as a `cargo::error=` line and exits with
+/// status 1, without a panic or backtrace.
+pub fn build_script(design_path: impl AsRef<Path>) {
+    let path = design_path.as_ref();
+    let result = emit(path);
+    let inputs = match &result {
+        Ok(e) => e.inputs.clone(),
+        Err(f) => f.inputs.clone(),
+    };
+    for p in &inputs {
+        println!("cargo:rerun-if-changed={}", p.display());
+    }
+    match result {
+        Ok(e) => {
+            for wmsg in &e.warnings {
+                println!("cargo::warning={}", one_line(wmsg));
+            }
+            let out = match std::env::var_os("OUT_DIR") {
+                Some(d) => PathBuf::from(d),
+                None => {
+                    println!("cargo::error=ctrl_design::emit::build_script: OUT_DIR is not set (call it from build.rs)");
+                    std::process::exit(1);
+                }
+            };
+            let file = out.join("constants.rs");
+            if let Err(err) = std::fs::write(&file, &e.source) {
+                println!("cargo::error=cannot write {}: {err}", file.display());
+                std::process::exit(1);
+            }
+        }
+        Err(f) => {
+            println!(
+                "cargo::error=the design {} does not pass its checks; no constants were generated:",
+                path.display()
+            );
+            for e in &f.errors {
+                println!("cargo::error={}", one_line(&e.to_string()));
+            }
+            std::process::exit(1);
+        }
+    }
+}
+
+fn one_line(s: &str) -> String {
+    s.replace(['\n', '\r'], " ")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn sig_keeps_six_digits() {
+        assert_eq!(sig(0.1580247), "0.158025");
+        assert_eq!(sig(500.0), "500");
+        assert_eq!(sig(45.8), "45.8");
+        assert_eq!(sig(-0.0104166), "-0.0104166");
+        assert_eq!(sig(1.5e-9), "1.50000e-9");
+    }
+
+    #[test]
+    fn fixed_quantization_reports_its_error() {
+        let (expr, q, rel) = q_fixed(0.7, 16, 32, "I16F16").unwrap();
+        // 0.7 * 65536 = 45875.2 -> 45875.
+        assert_eq!(expr, "::fixed::types::I16F16::from_bits(45875)");
+        assert_eq!(q, 45875.0 / 65536.0);
+        assert!((rel - 0.2 / 45875.2).abs() < 1e-12);
+        assert!(q_fixed(40000.0, 16, 32, "I16F16").is_err());
+        assert!(q_int(70000.0, 65535.0, "u16").is_err());
+    }
+}
