@@ -12,8 +12,9 @@
 //! move starts and `v[K] = end speed` when it ends, `K` ticks later. The position is
 //! advanced by the trapezoid rule, `p[k] = p[k-1] + (v[k-1] + v[k]) / 2`, kept internally
 //! as a doubled value so the halving never loses anything; the reported position is the
-//! doubled value halved and rounded down (at most ½ LSB below the exact trapezoid sum, and
-//! equal to it at the end of the move). So `p` and `v` describe the same instant.
+//! doubled value halved and rounded toward zero (at most ½ LSB from the exact trapezoid
+//! sum, equal to the target at the end of the move, and mirror-symmetric about 0). So `p`
+//! and `v` describe the same instant.
 //!
 //! # The plan (made once in [`Profile::start`])
 //!
@@ -79,7 +80,9 @@
 //!   position. For the demo rover's forward axis (`a ≈ 0.013`, `vc ≈ 2.18` counts/tick)
 //!   that is `K < T + 1.0015`.
 //! * **Position rounding:** within a move the reported position is the exact trapezoid
-//!   sum rounded down to an LSB (≤ ½ LSB off).
+//!   sum rounded toward zero to an LSB (≤ ½ LSB off).
+//! * **Mirror image:** a move of `−d` from speed `−u` at position `−p` gives exactly the
+//!   negated setpoints of the move of `d` from `u` at `p`.
 //!
 //! # Overflow policy
 //!
@@ -440,7 +443,7 @@ impl Profile {
         if a <= 0 || vc <= 0 || ve < 0 || ve > vc || (distance == 0 && ve != 0) {
             return Err(Error::OutOfRange);
         }
-        let here = self.pos2 >> 1;
+        let here = self.pos2 / 2; // the reported position (rounded toward zero)
         let target = here + distance;
         if target < i128::from(i64::MIN) || target > i128::from(i64::MAX) {
             return Err(Error::OutOfRange);
@@ -455,9 +458,14 @@ impl Profile {
         }
         let negative = distance < 0 || (distance == 0 && u < 0);
         let sign = if negative { -1 } else { 1 };
-        // Doubled target; its parity makes the interior sum an integer (module docs).
+        // Doubled end position: 2 target, or one off it when the parity of the interior
+        // sum needs it, on the side that still rounds (toward zero) to the target.
         let parity = (self.pos2 + u + ve).rem_euclid(2);
-        let q = sign * (2 * target + parity - self.pos2);
+        let half = match target.signum() {
+            0 => sign * parity,
+            s => s * parity,
+        };
+        let q = sign * (2 * target + half - self.pos2);
         let w0 = sign * u;
         let m = (q - w0 - ve) / 2;
         let found = solve(w0, ve, vc, a, m)?;
@@ -619,7 +627,7 @@ impl Profile {
     /// ```
     pub const fn setpoint(&self) -> Setpoint {
         Setpoint {
-            position: I32F32::from_bits(sat_i64(self.pos2 >> 1)),
+            position: I32F32::from_bits(sat_i64(self.pos2 / 2)),
             speed: I32F32::from_bits(self.speed),
             accel: I32F32::from_bits(self.accel),
         }
