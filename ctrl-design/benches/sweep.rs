@@ -3,7 +3,7 @@
 //!
 //! Run: `cargo bench -p ctrl-design --bench sweep`.
 
-use criterion::{criterion_group, criterion_main, Criterion, Throughput};
+use criterion::{criterion_main, Criterion, Throughput};
 use ctrl_design::sim::{
     Command, DerivativeForm, Feedforward, IdealLoop, LoopDesign, SimConfig,
 };
@@ -66,5 +66,9 @@ fn bench(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, bench);
-criterion_main!(benches);
+mod group {
+    // criterion's macro generates an undocumented `pub fn`.
+    #![allow(missing_docs)]
+    criterion::criterion_group!(benches, super::bench);
+}
+criterion_main!(group::benches);

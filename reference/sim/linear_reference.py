@@ -70,7 +70,9 @@ def run(case):
         acc = np.zeros(n)
     else:
         c = case["command"]
-        r, spd, acc = trapezoid(c["distance"], c["cruise_speed"], c["accel"], t)
+        # Tick k follows the setpoint of time (k + 1) h (the profile advances, then hands
+        # out its setpoint).
+        r, spd, acc = trapezoid(c["distance"], c["cruise_speed"], c["accel"], t + H)
     uff = spd / K + acc * TAU / K if case["feedforward"] else np.zeros(n)
     if case["derivative"] == "on_error":
         # u = (kp + kdf (1 - z^-1)) (r - y) + uff
@@ -103,6 +105,28 @@ def run(case):
     return out
 
 
+def sensitivity(delay_ticks, ticks=20000):
+    """l1 norms (sum of |pulse response|) of the closed loop with the PD on error, from a
+    voltage added at the plant input and from a measurement error, to the position. They
+    bound how far a perturbed loop can drift from the exact one:
+    |dx| <= l1_volts * max|dv| + l1_measurement * max|dm|."""
+    z = control.tf([1, 0], [1], H)
+    plant = control.c2d(control.tf([K], [TAU, 1, 0]), H, method="zoh")
+    pd_ = plant * control.tf([1], [1] + [0] * delay_ticks, H)
+    kdf = KD * RATE
+    ctrl = (KP + kdf) - kdf * (1 / z)
+    t = np.arange(ticks) * H
+    pulse = np.zeros(ticks)
+    pulse[0] = 1.0
+    g_v = np.asarray(control.forced_response(control.feedback(pd_, ctrl), t, pulse).outputs).ravel()
+    g_m = np.asarray(control.forced_response(-control.feedback(pd_ * ctrl, 1), t, pulse).outputs).ravel()
+    return {"delay_ticks": delay_ticks, "derivative": "on_error", "ticks": ticks,
+            "l1_volts_to_position": float(np.abs(g_v).sum()),
+            "l1_measurement_to_position": float(np.abs(g_m).sum()),
+            "tail_volts": float(np.abs(g_v[-100:]).max()),
+            "tail_measurement": float(np.abs(g_m[-100:]).max())}
+
+
 CASES = [
     {"name": "step_on_measurement", "command": {"kind": "step", "distance": 10.0},
      "derivative": "on_measurement", "delay_ticks": 0, "feedforward": False, "ticks": 500},
@@ -124,6 +148,7 @@ if __name__ == "__main__":
         "plant": {"gain": K, "time_constant_s": TAU, "bias_volts": 0.0},
         "rate_hz": RATE, "kp": KP, "kd": KD,
         "cases": [run(c) for c in CASES],
+        "sensitivity": [sensitivity(0), sensitivity(1)],
     }
     path = pathlib.Path(__file__).with_name("linear_reference.json")
     path.write_text(json.dumps(result, indent=1) + "\n")

@@ -1,6 +1,7 @@
 //! The `f64` loop: the firmware's loop form with no arithmetic quantization, and the
 //! sampled trapezoidal move it follows.
 
+use super::firmware::{quantize_move, FirmwareUnits, QuantizeError};
 use super::{Command, Controller, LoopOutput, Measurement, Setpoint};
 use crate::Plant;
 
@@ -138,15 +139,21 @@ impl MoveF64 {
     }
 }
 
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 enum Reference {
     Step(f64),
     Move(MoveF64),
+    /// `ctrl-core`'s profile (counts, ticks), scaled back to units: (profile, count size,
+    /// rate).
+    Core(ctrl_core::profile::Profile, f64, f64),
 }
 
 /// The `f64` loop ([`LoopDesign`]) running a [`Command`]: the reference against which the
 /// fixed-point loop's quantization is judged.
-#[derive(Debug, Clone, Copy)]
+///
+/// Like `ctrl-core`'s profile, which advances one tick before it hands out a setpoint, tick
+/// `k` follows the move's setpoint at time `(k + 1) / rate`.
+#[derive(Debug, Clone)]
 pub struct IdealLoop {
     design: LoopDesign,
     reference: Reference,
@@ -180,16 +187,55 @@ impl IdealLoop {
     }
 }
 
+impl IdealLoop {
+    /// As [`IdealLoop::new`], but a move follows `ctrl-core`'s own profile (planned in
+    /// whole ticks, in `I32F32` counts) scaled back to units, instead of the exact
+    /// trapezoid. With it the f64 and fixed-point loops follow the same setpoints, so
+    /// their difference is the arithmetic's quantization alone.
+    pub fn on_firmware_profile(
+        design: &LoopDesign,
+        command: &Command,
+        units: &FirmwareUnits,
+    ) -> Result<Self, QuantizeError> {
+        let mut lp = IdealLoop::new(design, command, units.rate_hz);
+        if let Command::Move {
+            distance,
+            cruise_speed,
+            accel,
+        } = *command
+        {
+            let mv = quantize_move(distance, cruise_speed, accel, units)?;
+            let mut profile = ctrl_core::profile::Profile::new();
+            profile.start(mv).map_err(|e| QuantizeError {
+                constant: "move",
+                value: distance,
+                valid: format!("a move the profile accepts ({e})"),
+            })?;
+            lp.reference = Reference::Core(profile, units.count_size, units.rate_hz);
+        }
+        Ok(lp)
+    }
+}
+
 impl Controller for IdealLoop {
     #[inline]
     fn tick(&mut self, m: &Measurement) -> LoopOutput {
-        let sp = match self.reference {
+        let sp = match &mut self.reference {
             Reference::Step(d) => Setpoint {
-                position: d,
+                position: *d,
                 speed: 0.0,
                 accel: 0.0,
             },
-            Reference::Move(mv) => mv.at(self.k as f64 * self.tick_s),
+            Reference::Move(mv) => mv.at((self.k + 1) as f64 * self.tick_s),
+            Reference::Core(profile, c, f) => {
+                let (c, f) = (*c, *f);
+                let sp = profile.step();
+                Setpoint {
+                    position: sp.position.to_num::<f64>() * c,
+                    speed: sp.speed.to_num::<f64>() * c * f,
+                    accel: sp.accel.to_num::<f64>() * c * f * f,
+                }
+            }
         };
         self.k += 1;
         let e = sp.position - m.position;

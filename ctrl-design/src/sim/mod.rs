@@ -14,11 +14,16 @@
 //! for ([`simulate_traced`]).
 
 mod drive;
+mod firmware;
 mod ideal;
 mod metrics;
 mod plot;
 
 pub use drive::Drive;
+pub use firmware::{
+    quantize_axis, quantize_move, AxisKind, FirmwareLoop, FirmwareUnits, QuantizationReport,
+    Quantized, QuantizeError, QuantizedAxis, MAX_RELATIVE_ERROR,
+};
 pub use ideal::{DerivativeForm, Feedforward, IdealLoop, LoopDesign, MoveF64};
 pub use metrics::Metrics;
 pub use plot::plot_svg;

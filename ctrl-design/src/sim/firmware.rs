@@ -1,0 +1,448 @@
+//! The loop stepped through `ctrl-core`'s fixed-point arithmetic, and the one conversion
+//! from an `f64` design in user units to `ctrl-core` constants in counts and ticks.
+//!
+//! # Conversion (user units -> counts and ticks)
+//!
+//! With `c` the distance of one encoder count (units) and `f` the loop rate (Hz), a speed
+//! of `s` units/s is `s / (c f)` counts/tick and an acceleration of `a` units/s^2 is
+//! `a / (c f^2)` counts/tick^2. So the gains become:
+//!
+//! | design (user units)              | `ctrl-core` constant                         |
+//! | -------------------------------- | -------------------------------------------- |
+//! | `kp` V/unit                      | `kp * c` V/count                             |
+//! | `kd` V per unit/s                | `kd_per_tick = kd * c * f` V per count/tick  |
+//! | speed feedforward `1/K` V per unit/s | `kv = c f / K` V per count/tick          |
+//! | accel feedforward `T/K` V per unit/s^2 | `ka = T c f^2 / K` V per count/tick^2  |
+//! | bias V                           | `I16F16` volts                               |
+//! | supply V                         | PD output limit, `I16F16` volts              |
+//!
+//! Each gain goes through [`Coeff::from_f64`], which picks the format that keeps its
+//! precision; [`quantize_axis`] refuses a constant whose relative error would exceed the
+//! caller's bound and reports every constant's error.
+
+use super::{Command, Controller, DerivativeForm, LoopDesign, LoopOutput, Measurement, Setpoint};
+use ctrl_core::drive::{Axis, DriveState, Feedback, TwoAxisDrive};
+use ctrl_core::encoder::Encoders;
+use ctrl_core::feedforward::Feedforward as CoreFeedforward;
+use ctrl_core::pd::{Derivative, Pd};
+use ctrl_core::profile::Move;
+use ctrl_core::stall::StallGuard;
+use ctrl_core::supply::Supply;
+use ctrl_core::Coeff;
+use fixed::types::{I16F16, I32F32};
+use std::fmt;
+
+/// Relative error [`FirmwareLoop::from_design`] accepts for any gain (0.1 %). `Coeff` holds
+/// values in `2^-32 ..= 32767` within `2^-15` (0.003 %), so only gains far outside any
+/// sensible range are refused.
+pub const MAX_RELATIVE_ERROR: f64 = 1e-3;
+
+/// Encoder and loop-rate scale of the conversion.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct FirmwareUnits {
+    /// Distance of one encoder count, units (> 0).
+    pub count_size: f64,
+    /// Loop rate, Hz (> 0).
+    pub rate_hz: f64,
+}
+
+/// One constant's conversion: the value wanted (in `ctrl-core` units), the value held, and
+/// the relative error `|held - wanted| / |wanted|` (0 when wanted is 0).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct Quantized {
+    /// The exact value in firmware units.
+    pub wanted: f64,
+    /// The value the firmware constant holds.
+    pub held: f64,
+    /// Relative error.
+    pub relative_error: f64,
+}
+
+/// The errors [`quantize_axis`] introduced, per constant (firmware units).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct QuantizationReport {
+    /// `kp`, V/count.
+    pub kp: Quantized,
+    /// `kd_per_tick`, V per count/tick.
+    pub kd_per_tick: Quantized,
+    /// Speed feedforward `kv`, V per count/tick.
+    pub kv: Quantized,
+    /// Acceleration feedforward `ka`, V per count/tick^2.
+    pub ka: Quantized,
+    /// Friction bias, V.
+    pub bias_volts: Quantized,
+    /// PD output limit, V.
+    pub limit_volts: Quantized,
+}
+
+impl QuantizationReport {
+    /// The largest relative error of the gains (`kp`, `kd_per_tick`, `kv`, `ka`).
+    pub fn worst_gain_error(&self) -> f64 {
+        [self.kp, self.kd_per_tick, self.kv, self.ka]
+            .iter()
+            .map(|q| q.relative_error)
+            .fold(0.0, f64::max)
+    }
+}
+
+/// The `ctrl-core` constants of one axis and how closely they hold the design.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct QuantizedAxis {
+    /// Feedforward (`Feedforward::NONE` when the design has none).
+    pub feedforward: CoreFeedforward,
+    /// PD loop.
+    pub pd: Pd,
+    /// Errors introduced.
+    pub report: QuantizationReport,
+}
+
+impl QuantizedAxis {
+    /// The `ctrl-core` axis with the given stall guard.
+    pub const fn axis(&self, stall: StallGuard) -> Axis {
+        Axis::new(self.feedforward, Feedback::Pd(self.pd), stall)
+    }
+}
+
+/// A design constant that cannot be held, or a scale outside its range.
+#[derive(Debug, Clone, PartialEq)]
+pub struct QuantizeError {
+    /// The constant (`kp`, `kd_per_tick`, `kv`, `ka`, `bias_volts`, `limit_volts`,
+    /// `count_size`, `rate_hz`, `distance`, `cruise_speed`, `accel`).
+    pub constant: &'static str,
+    /// The value in firmware units (counts, ticks, volts).
+    pub value: f64,
+    /// What is valid.
+    pub valid: String,
+}
+
+impl fmt::Display for QuantizeError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(
+            f,
+            "{} = {:e} (firmware units) cannot be held: valid is {}",
+            self.constant, self.value, self.valid
+        )
+    }
+}
+
+impl std::error::Error for QuantizeError {}
+
+fn coeff(name: &'static str, x: f64, max_rel: f64) -> Result<(Coeff, Quantized), QuantizeError> {
+    let err = |valid: String| QuantizeError {
+        constant: name,
+        value: x,
+        valid,
+    };
+    let (c, rel) = Coeff::from_f64(x).map_err(|e| {
+        err(format!(
+            "a finite value of magnitude 2^-48 ..< 32767.5 ({e})"
+        ))
+    })?;
+    if rel > max_rel {
+        return Err(err(format!(
+            "a value held within a relative error of {max_rel:e} (this one: {rel:e}; \
+             magnitudes 2^-32 ..= 32767 are held within 2^-15)"
+        )));
+    }
+    Ok((
+        c,
+        Quantized {
+            wanted: x,
+            held: c.to_f64(),
+            relative_error: rel,
+        },
+    ))
+}
+
+fn volts(name: &'static str, x: f64) -> Result<(I16F16, Quantized), QuantizeError> {
+    let v = I16F16::checked_from_num(x)
+        .filter(|_| x.is_finite())
+        .ok_or_else(|| QuantizeError {
+            constant: name,
+            value: x,
+            valid: "finite volts in -32768 ..< 32768".to_string(),
+        })?;
+    let held: f64 = v.to_num();
+    Ok((
+        v,
+        Quantized {
+            wanted: x,
+            held,
+            relative_error: if x == 0.0 { 0.0 } else { ((held - x) / x).abs() },
+        },
+    ))
+}
+
+fn check_units(u: &FirmwareUnits) -> Result<(), QuantizeError> {
+    for (constant, v) in [("count_size", u.count_size), ("rate_hz", u.rate_hz)] {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(QuantizeError {
+                constant,
+                value: v,
+                valid: "finite and > 0".to_string(),
+            });
+        }
+    }
+    Ok(())
+}
+
+/// Converts an `f64` design (user units) into `ctrl-core` constants (counts, ticks) for
+/// an encoder of `units.count_size` at `units.rate_hz`, with the PD output limited to
+/// `limit_volts`; refuses any gain held worse than `max_relative_error`.
+///
+/// This is the one conversion both the simulation and constant emission use (table in the
+/// module docs).
+///
+/// ```
+/// use ctrl_design::sim::{quantize_axis, FirmwareUnits, LoopDesign, DerivativeForm, Feedforward};
+/// use ctrl_design::Plant;
+/// let plant = Plant::new(180.0, 0.09, 0.7).unwrap();
+/// let design = LoopDesign { kp: 0.12, kd: 0.004, derivative: DerivativeForm::OnError,
+///     feedforward: Some(Feedforward::for_plant(&plant)) };
+/// let units = FirmwareUnits { count_size: 0.36652, rate_hz: 500.0 };
+/// let q = quantize_axis(&design, &units, 6.4, 1e-3).unwrap();
+/// // kd_per_tick = 0.004 * 0.36652 * 500 = 0.73304 V per count/tick
+/// assert!((q.report.kd_per_tick.held - 0.73304).abs() < 0.73304 * 3.1e-5);
+/// assert!(q.report.worst_gain_error() < 3.1e-5);
+/// ```
+pub fn quantize_axis(
+    design: &LoopDesign,
+    units: &FirmwareUnits,
+    limit_volts: f64,
+    max_relative_error: f64,
+) -> Result<QuantizedAxis, QuantizeError> {
+    check_units(units)?;
+    let (c, f) = (units.count_size, units.rate_hz);
+    let (kp, kp_q) = coeff("kp", design.kp * c, max_relative_error)?;
+    let (kd, kd_q) = coeff("kd_per_tick", design.kd * c * f, max_relative_error)?;
+    let ff = design.feedforward.unwrap_or(super::Feedforward {
+        volts_per_speed: 0.0,
+        volts_per_accel: 0.0,
+        bias_volts: 0.0,
+    });
+    let (kv, kv_q) = coeff("kv", ff.volts_per_speed * c * f, max_relative_error)?;
+    let (ka, ka_q) = coeff("ka", ff.volts_per_accel * c * f * f, max_relative_error)?;
+    let (bias, bias_q) = volts("bias_volts", ff.bias_volts)?;
+    let (limit, limit_q) = volts("limit_volts", limit_volts)?;
+    let derivative = match design.derivative {
+        DerivativeForm::OnError => Derivative::OnError,
+        DerivativeForm::OnMeasurement => Derivative::OnMeasurement,
+    };
+    Ok(QuantizedAxis {
+        feedforward: CoreFeedforward::new(kv, ka, bias),
+        pd: Pd::new(kp, kd, derivative, limit),
+        report: QuantizationReport {
+            kp: kp_q,
+            kd_per_tick: kd_q,
+            kv: kv_q,
+            ka: ka_q,
+            bias_volts: bias_q,
+            limit_volts: limit_q,
+        },
+    })
+}
+
+fn fixed32(constant: &'static str, x: f64, valid: &str) -> Result<I32F32, QuantizeError> {
+    I32F32::checked_from_num(x)
+        .filter(|_| x.is_finite())
+        .ok_or_else(|| QuantizeError {
+            constant,
+            value: x,
+            valid: valid.to_string(),
+        })
+}
+
+/// A move in user units as a `ctrl-core` [`Move`] in counts and ticks (from rest to rest).
+pub fn quantize_move(
+    distance: f64,
+    cruise_speed: f64,
+    accel: f64,
+    units: &FirmwareUnits,
+) -> Result<Move, QuantizeError> {
+    check_units(units)?;
+    let (c, f) = (units.count_size, units.rate_hz);
+    let range = "finite and within the I32F32 range (about ±2.1e9)";
+    Ok(Move::new(
+        fixed32("distance", distance / c, range)?,
+        fixed32("cruise_speed", cruise_speed / (c * f), range)?,
+        I32F32::ZERO,
+        fixed32("accel", accel / (c * f * f), range)?,
+    ))
+}
+
+/// Which axis of the two-wheel drive the simulated drive is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum AxisKind {
+    /// Both wheels move together: forward = (L + R) / 2.
+    Forward,
+    /// The wheels move oppositely: rotation = (R - L) / 2.
+    Rotation,
+}
+
+/// A `ctrl-core` two-wheel drive running one axis (the other axis at rest), stepped with
+/// the encoder counts of the simulated drive; the applied voltage is the axis' share of the
+/// two wheel duties times the supply.
+///
+/// The whole firmware tick runs: 16-bit encoder wrap, profile, feedforward, PD, wheel mix
+/// with its limit, supply compensation through the stored reciprocal, stall guard (off).
+///
+/// A step command is made the way firmware would see a sudden new target: the encoder's
+/// reference reading is taken `distance` counts (rounded to whole counts) away, so the
+/// profile at rest holds the target. So a step must be shorter than 32768 counts.
+pub struct FirmwareLoop {
+    drive: TwoAxisDrive,
+    state: DriveState,
+    kind: AxisKind,
+    count_size: f64,
+    rate_hz: f64,
+    supply_volts: f64,
+    /// True position of the profile's origin, counts.
+    origin_counts: i64,
+}
+
+impl FirmwareLoop {
+    /// A loop at rest, with `axis` on `kind` and a quiet other axis, running `command`,
+    /// fed from a supply of `supply_volts` (> 0, finite).
+    pub fn new(
+        axis: &QuantizedAxis,
+        kind: AxisKind,
+        units: &FirmwareUnits,
+        supply_volts: f64,
+        command: &Command,
+    ) -> Result<Self, QuantizeError> {
+        check_units(units)?;
+        let (battery, _) = volts("supply_volts", supply_volts)?;
+        if !(supply_volts > 0.0) {
+            return Err(QuantizeError {
+                constant: "supply_volts",
+                value: supply_volts,
+                valid: "finite and > 0 (volts)".to_string(),
+            });
+        }
+        let active = axis.axis(StallGuard::OFF);
+        let quiet = Axis::new(
+            CoreFeedforward::NONE,
+            Feedback::Pd(Pd::new(
+                Coeff::ZERO,
+                Coeff::ZERO,
+                Derivative::OnError,
+                I16F16::ZERO,
+            )),
+            StallGuard::OFF,
+        );
+        let (fwd, rot) = match kind {
+            AxisKind::Forward => (active, quiet),
+            AxisKind::Rotation => (quiet, active),
+        };
+        let drive = TwoAxisDrive::new(
+            Encoders::new(false, false),
+            fwd,
+            rot,
+            Supply::new(I16F16::ZERO),
+            battery,
+        );
+        let mut state = DriveState::new();
+        drive.set_battery(&mut state, battery);
+        let mut lp = FirmwareLoop {
+            drive,
+            state,
+            kind,
+            count_size: units.count_size,
+            rate_hz: units.rate_hz,
+            supply_volts,
+            origin_counts: 0,
+        };
+        match *command {
+            Command::Step { distance } => {
+                let d = (distance / units.count_size).round();
+                if !(d.abs() < 32768.0) {
+                    return Err(QuantizeError {
+                        constant: "distance",
+                        value: d,
+                        valid: "a step shorter than 32768 counts".to_string(),
+                    });
+                }
+                lp.origin_counts = d as i64;
+                // The reference reading: the encoder frame's zero is the target.
+                lp.read(lp.origin_counts);
+            }
+            Command::Move {
+                distance,
+                cruise_speed,
+                accel,
+            } => {
+                let mv = quantize_move(distance, cruise_speed, accel, units)?;
+                let st = match kind {
+                    AxisKind::Forward => lp.state.forward_mut(),
+                    AxisKind::Rotation => lp.state.rotation_mut(),
+                };
+                st.start(mv).map_err(|e| QuantizeError {
+                    constant: "move",
+                    value: distance,
+                    valid: format!("a move the profile accepts ({e})"),
+                })?;
+            }
+        }
+        Ok(lp)
+    }
+
+    /// [`quantize_axis`] with [`MAX_RELATIVE_ERROR`] and the supply as the PD limit, then
+    /// [`FirmwareLoop::new`]; returns the loop and the quantization report.
+    pub fn from_design(
+        design: &LoopDesign,
+        kind: AxisKind,
+        units: &FirmwareUnits,
+        supply_volts: f64,
+        command: &Command,
+    ) -> Result<(Self, QuantizationReport), QuantizeError> {
+        let q = quantize_axis(design, units, supply_volts, MAX_RELATIVE_ERROR)?;
+        Ok((
+            FirmwareLoop::new(&q, kind, units, supply_volts, command)?,
+            q.report,
+        ))
+    }
+
+    /// One firmware tick with the encoders at `counts` (axis position); returns the duties.
+    #[inline]
+    fn read(&mut self, counts: i64) -> [I16F16; 2] {
+        let raw = counts as u16; // the hardware counter keeps the low 16 bits
+        let (l, r) = match self.kind {
+            AxisKind::Forward => (raw, raw),
+            AxisKind::Rotation => (raw.wrapping_neg(), raw),
+        };
+        self.drive.tick(&mut self.state, l, r)
+    }
+}
+
+impl Controller for FirmwareLoop {
+    #[inline]
+    fn tick(&mut self, m: &Measurement) -> LoopOutput {
+        let duty = self.read(m.counts);
+        let sample = self.state.sample();
+        let (axis, share) = match self.kind {
+            AxisKind::Forward => (sample.forward, duty[0].to_num::<f64>() + duty[1].to_num::<f64>()),
+            AxisKind::Rotation => (
+                sample.rotation,
+                duty[1].to_num::<f64>() - duty[0].to_num::<f64>(),
+            ),
+        };
+        let c = self.count_size;
+        let sp_counts: f64 = axis.setpoint.to_num();
+        let accel: f64 = match self.kind {
+            AxisKind::Forward => self.state.forward().profile().setpoint().accel,
+            AxisKind::Rotation => self.state.rotation().profile().setpoint().accel,
+        }
+        .to_num();
+        LoopOutput {
+            setpoint: Setpoint {
+                position: (sp_counts + self.origin_counts as f64) * c,
+                speed: axis.speed.to_num::<f64>() * c * self.rate_hz,
+                accel: accel * c * self.rate_hz * self.rate_hz,
+            },
+            feedforward_volts: axis.feedforward.to_num(),
+            feedback_volts: axis.feedback.to_num(),
+            command_volts: 0.5 * share * self.supply_volts,
+        }
+    }
+}
