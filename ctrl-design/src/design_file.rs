@@ -70,7 +70,7 @@ pub const KEYS: &[KeyInfo] = &[
     KeyInfo { key: "<axis>.stall_guard.max_tracking_error", unit: "unit", valid: "greater than 0, at most 1e6", meaning: "tracking error above which the stall guard starts counting" },
     KeyInfo { key: "<axis>.stall_guard.max_time_s", unit: "s", valid: "greater than 0, at most 10", meaning: "time over max_tracking_error before the stall guard trips" },
     KeyInfo { key: "checks.max_overshoot_pct", unit: "%", valid: "0 to 100; optional, default 25", meaning: "largest overshoot of the discrete loop (with one tick of delay) accepted" },
-    KeyInfo { key: "checks.max_chatter_share", unit: "1", valid: "greater than 0, at most 1; optional, default 0.25", meaning: "largest voltage step one encoder count may cause through the derivative term, as a share of supply.lowest_volts" },
+    KeyInfo { key: "checks.max_chatter_share", unit: "1", valid: "greater than 0, at most 1; optional, default 0.1", meaning: "largest voltage step one encoder count may cause through the derivative term, as a share of supply.lowest_volts" },
     KeyInfo { key: "checks.min_rate_ratio", unit: "1", valid: "at least 2, at most 1000; optional, default 10", meaning: "smallest loop rate / closed-loop bandwidth ratio accepted" },
     KeyInfo { key: "checks.max_quantization_error_pct", unit: "%", valid: "greater than 0, at most 0.1; optional, default 0.1", meaning: "largest relative error a constant may pick up in fixed point" },
 ];
@@ -304,8 +304,8 @@ impl Default for CheckLimits {
     fn default() -> Self {
         CheckLimits {
             max_overshoot_pct: 25.0,
-            max_chatter_share: 0.25,
-            min_rate_ratio: 10.0,
+            max_chatter_share: crate::tune::MAX_DERIVATIVE_STEP_SHARE,
+            min_rate_ratio: crate::tune::MIN_RATE_PER_BANDWIDTH,
             max_quantization_error_pct: 0.1,
         }
     }
@@ -1168,6 +1168,27 @@ mod tests {
         assert_eq!(key_at(src, src.find("2").unwrap()), "b.c.y");
         assert_eq!(key_at(src, src.find("[b").unwrap()), "b.c");
         assert_eq!(line_of_offset(src, src.find("2").unwrap()), 4);
+    }
+
+    #[test]
+    fn documented_defaults_are_the_defaults() {
+        let d = CheckLimits::default();
+        for (key, v) in [
+            ("checks.max_overshoot_pct", d.max_overshoot_pct),
+            ("checks.max_chatter_share", d.max_chatter_share),
+            ("checks.min_rate_ratio", d.min_rate_ratio),
+            (
+                "checks.max_quantization_error_pct",
+                d.max_quantization_error_pct,
+            ),
+        ] {
+            let info = key_info(key).unwrap();
+            assert!(
+                info.valid.ends_with(&format!("default {v}")),
+                "{key}: {}",
+                info.valid
+            );
+        }
     }
 
     #[test]

@@ -29,14 +29,12 @@ use crate::design_file::{
     Axis, AxisDesign, DesignError, DesignErrors, DesignFile, LoopTarget, PlantSource,
 };
 use crate::identify::{self, Identification, Log};
+use crate::sim;
+use crate::tune;
 use crate::Plant;
 
 /// Largest relative quantization error any emitted constant may have, percent.
 pub const QUANTIZATION_LIMIT_PCT: f64 = 0.1;
-
-/// Largest phase lead one lead stage is asked for, degrees (beyond it `alpha` gets so small
-/// that noise gain explodes; common practice, no source).
-pub const MAX_LEAD_DEG: f64 = 60.0;
 
 /// The position-loop gains of one axis, in the axis' user units (mm or rad, seconds).
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
@@ -331,14 +329,62 @@ fn identify_axis(
     }
 }
 
-/// PD by pole placement: `wn = c / (zeta ts)`, `Kp = wn^2 T / K`, `Kd = (2 zeta wn T - 1) / K`.
-fn pd_gains(plant: &Plant, damping: f64, settling_time_s: f64, band_pct: f64) -> (f64, f64, f64) {
-    let c = SettlingBand { percent: band_pct }.factor();
-    let wn = c / (damping * settling_time_s);
-    let t = plant.time_constant_s;
-    let kp = wn * wn * t / plant.gain;
-    let kd = (2.0 * damping * wn * t - 1.0) / plant.gain;
-    (kp, kd, wn)
+/// A refusal from [`crate::tune`] as a design-file error at the key its field comes from.
+fn tune_error(design: &DesignFile, axis: &str, e: &tune::DesignError) -> DesignError {
+    let (field, value, reason, valid) = match e {
+        tune::DesignError::OutOfRange {
+            field,
+            value,
+            valid,
+        } => (*field, *value, "out of range".to_string(), valid.clone()),
+        tune::DesignError::Infeasible {
+            field,
+            value,
+            reason,
+            valid,
+        } => (*field, *value, reason.clone(), valid.clone()),
+    };
+    let key = match field {
+        "gain" | "time_constant_s" | "bias_volts" => format!("{axis}.plant.{field}"),
+        "rate_hz" => "drive.loop_rate_hz".to_string(),
+        f => format!("{axis}.loop.{f}"),
+    };
+    design.error(
+        &key,
+        format!("{} cannot be met: {reason}", sig(value)),
+        Some(valid),
+    )
+}
+
+/// A check on one axis, recorded in `checks`.
+struct Checker<'a> {
+    axis: &'static str,
+    checks: &'a mut Vec<Check>,
+}
+
+impl Checker<'_> {
+    #[allow(clippy::too_many_arguments)]
+    fn record(
+        &mut self,
+        name: &'static str,
+        value: f64,
+        limit: f64,
+        unit: &'static str,
+        passed: bool,
+        warning: bool,
+        detail: String,
+    ) {
+        self.checks.push(Check {
+            axis: Some(self.axis),
+            name,
+            value,
+            limit,
+            unit,
+            passed,
+            warning,
+            detail,
+        });
+    }
 }
 
 fn design_axis(
@@ -358,141 +404,115 @@ fn design_axis(
     let rate = design.drive.loop_rate_hz;
     let cpu = design.drive.counts_per_unit(a.axis);
     let count_size = 1.0 / cpu;
-    let mut check = |name_: &'static str,
-                     value: f64,
-                     limit: f64,
-                     unit_: &'static str,
-                     passed: bool,
-                     warning: bool,
-                     detail: String| {
-        checks.push(Check {
-            axis: Some(name),
-            name: name_,
-            value,
-            limit,
-            unit: unit_,
-            passed,
-            warning,
-            detail,
-        });
-    };
+    let low = design.supply.lowest_volts;
+    let mut ck = Checker { axis: name, checks };
 
-    let (gains, response, band) = match a.target {
+    let (gains, response) = match a.target {
         LoopTarget::Pd {
             damping,
             settling_time_s,
             band_pct,
         } => {
-            let (kp, kd, wn) = pd_gains(&plant, damping, settling_time_s, band_pct);
-            let band = SettlingBand { percent: band_pct };
-            // Kd >= 0 needs wn >= 1 / (2 zeta T), that is ts <= 2 c T.
-            let ts_max = 2.0 * band.factor() * plant.time_constant_s;
-            let ok = kd >= 0.0;
-            check(
+            let band = SettlingBand::percent(band_pct).unwrap_or_default();
+            let d = match tune::design_pd(&plant, damping, settling_time_s, band) {
+                Ok(d) => d,
+                Err(e) => {
+                    let err = tune_error(design, name, &e);
+                    ck.record(
+                        "kd_not_negative",
+                        settling_time_s,
+                        2.0 * band.factor() * plant.time_constant_s,
+                        "s",
+                        false,
+                        false,
+                        err.message.clone(),
+                    );
+                    return Err(vec![err]);
+                }
+            };
+            ck.record(
                 "kd_not_negative",
-                kd,
+                d.kd,
                 0.0,
                 "V per unit/s",
-                ok,
+                true,
                 false,
-                if ok {
-                    format!("Kd = {} V per {unit}/s", sig(kd))
-                } else {
-                    format!(
-                        "settling_time_s = {settling_time_s} s makes Kd = {} V per {unit}/s negative \
-                         (the drive's own time constant {} s already settles faster); the longest \
-                         settling time for this plant is {} s",
-                        sig(kd),
-                        sig(plant.time_constant_s),
-                        sig(ts_max)
-                    )
-                },
+                format!(
+                    "Kd = {} V per {unit}/s (settling time {settling_time_s} s, longest for this plant {} s)",
+                    sig(d.kd),
+                    sig(d.longest_settling_time_s)
+                ),
             );
-            if !ok {
-                return Err(vec![design.error(
-                    &format!("{name}.loop.settling_time_s"),
-                    format!(
-                        "{settling_time_s} s makes Kd = {} V per {unit}/s negative (plant T = {} s)",
-                        sig(kd),
-                        sig(plant.time_constant_s)
-                    ),
-                    Some(format!(
-                        "at most {} s for this plant (2 x {} x T with the {band_pct} % band)",
-                        sig(ts_max),
-                        band.factor()
-                    )),
-                )]);
-            }
             let response =
-                analysis::report_pd(&plant, kp, kd, Some(rate), band, DerivativeOn::Error);
+                analysis::report_pd(&plant, d.kp, d.kd, Some(rate), band, DerivativeOn::Error);
             (
                 Gains::Pd {
-                    kp,
-                    kd,
-                    natural_frequency_rad_s: wn,
+                    kp: d.kp,
+                    kd: d.kd,
+                    natural_frequency_rad_s: d.natural_frequency,
                 },
                 response,
-                band,
             )
         }
         LoopTarget::Lead {
             crossover_rad_s: wc,
             phase_margin_deg: pm,
         } => {
-            let t = plant.time_constant_s;
-            // Plant phase at wc: -90 - atan(wc T) deg; the lead must supply the rest.
-            let lead_deg = pm - 90.0 + (wc * t).atan().to_degrees();
-            let ok = lead_deg > 0.0 && lead_deg <= MAX_LEAD_DEG;
-            check(
+            let d =
+                tune::design_lead(&plant, wc, pm).and_then(|d| d.discretize(rate).map(|c| (d, c)));
+            let (d, coeffs) = match d {
+                Ok(x) => x,
+                Err(e) => {
+                    let err = tune_error(design, name, &e);
+                    ck.record(
+                        "lead_feasible",
+                        pm,
+                        tune::MAX_LEAD_DEG,
+                        "deg",
+                        false,
+                        false,
+                        err.message.clone(),
+                    );
+                    return Err(vec![err]);
+                }
+            };
+            ck.record(
                 "lead_feasible",
-                lead_deg,
-                MAX_LEAD_DEG,
+                d.lead_deg,
+                tune::MAX_LEAD_DEG,
                 "deg",
-                ok,
+                true,
                 false,
-                if ok {
-                    format!("needs {} deg of lead", sig(lead_deg))
-                } else if lead_deg <= 0.0 {
-                    format!(
-                        "the plant alone already has {} deg of phase margin at {wc} rad/s; no lead is needed (use kind = \"pd\")",
-                        sig(pm - lead_deg)
-                    )
-                } else {
-                    format!(
-                        "needs {} deg of lead at {wc} rad/s, more than one stage gives ({MAX_LEAD_DEG} deg); lower the crossover or the phase margin",
-                        sig(lead_deg)
-                    )
-                },
+                format!(
+                    "needs {} deg of lead at {wc} rad/s (one stage gives up to {} deg)",
+                    sig(d.lead_deg),
+                    tune::MAX_LEAD_DEG
+                ),
             );
-            if !ok {
-                return Err(vec![design.error(
-                    &format!("{name}.loop.phase_margin_deg"),
-                    format!("{pm} deg at {wc} rad/s needs {} deg of lead", sig(lead_deg)),
-                    Some(format!("a needed lead in (0, {MAX_LEAD_DEG}] deg")),
-                )]);
+            for w in &d.warnings {
+                warnings.push(format!("{name}: {w}"));
             }
-            let s = lead_deg.to_radians().sin();
-            let alpha = (1.0 - s) / (1.0 + s);
-            let t1 = 1.0 / (wc * alpha.sqrt());
-            let plant_mag = plant.gain / (wc * (1.0 + (wc * t).powi(2)).sqrt());
-            let kc = alpha.sqrt() / plant_mag;
-            let coeffs = analysis::lead_tustin(kc, alpha, t1, rate, Some(wc));
-            let band = SettlingBand::TWO_PERCENT;
-            let response = analysis::report_lead(&plant, kc, alpha, t1, Some(rate), Some(wc), band);
+            let response = analysis::report_lead(
+                &plant,
+                d.kc,
+                d.alpha,
+                d.t1,
+                Some(rate),
+                Some(wc),
+                SettlingBand::TWO_PERCENT,
+            );
             (
                 Gains::Lead {
-                    kc,
-                    alpha,
-                    t1,
-                    lead_deg,
+                    kc: d.kc,
+                    alpha: d.alpha,
+                    t1: d.t1,
+                    lead_deg: d.lead_deg,
                     coeffs,
                 },
                 response,
-                band,
             )
         }
     };
-    let _ = band;
 
     // The discrete loop with one tick of computation delay is what the firmware runs.
     let delayed = response
@@ -501,7 +521,7 @@ fn design_axis(
         .unwrap_or_else(|| response.continuous.clone());
     let mag = delayed.max_pole_magnitude.unwrap_or(f64::NAN);
     let stable = delayed.stable && mag < 1.0;
-    check(
+    ck.record(
         "discrete_stable",
         mag,
         1.0,
@@ -515,7 +535,7 @@ fn design_axis(
             )
         } else {
             format!(
-                "the discrete loop with one tick of delay is unstable (largest pole magnitude {}); lengthen the settling time or raise the loop rate",
+                "the discrete loop with one tick of delay is unstable (largest pole magnitude {}); slow the loop down or raise the loop rate",
                 sig(mag)
             )
         },
@@ -523,7 +543,7 @@ fn design_axis(
     let overshoot = delayed.overshoot_pct.unwrap_or(0.0);
     let max_os = design.checks.max_overshoot_pct;
     let ok = stable && overshoot <= max_os;
-    check(
+    ck.record(
         "overshoot",
         overshoot,
         max_os,
@@ -543,13 +563,48 @@ fn design_axis(
         },
     );
 
-    // Loop rate against closed-loop bandwidth.
-    let bw_hz =
-        response.continuous.bandwidth_rad_s.unwrap_or(f64::NAN) / (2.0 * std::f64::consts::PI);
-    let ratio = rate / bw_hz;
+    // Loop rate against closed-loop bandwidth, and the voltage step of one encoder count.
+    let bw = response.continuous.bandwidth_rad_s.unwrap_or(f64::NAN);
+    let bw_hz = bw / (2.0 * std::f64::consts::PI);
+    let (ratio, step_volts, suggestion) = match gains {
+        Gains::Pd { kp, kd, .. } => {
+            let input = tune::LoopCheckInput {
+                bandwidth_rad_s: bw,
+                rate_hz: rate,
+                cruise_speed: a.moves.cruise_speed,
+                count_size,
+                kp,
+                kd,
+                supply_min_volts: low,
+                crossover_rad_s: response.continuous.gain_crossover_rad_s,
+            };
+            match tune::check_rate_and_encoder(&input) {
+                Ok(c) => {
+                    let suggestion = match c.suggested_filter {
+                        Some(f) => format!(
+                            "filter the derivative: kind = \"lead\" near Kc = {} V/{unit}, alpha = {}, T1 = {} s (filter time constant {} s) steps {} V per count",
+                            sig(f.kc),
+                            sig(f.alpha),
+                            sig(f.t1),
+                            sig(f.time_constant_s),
+                            sig(f.step_volts)
+                        ),
+                        None => "lengthen the settling time or use a finer encoder".to_string(),
+                    };
+                    (c.rate_per_bandwidth, c.derivative_step_volts, suggestion)
+                }
+                Err(e) => return Err(vec![tune_error(design, name, &e)]),
+            }
+        }
+        Gains::Lead { coeffs, .. } => (
+            rate / bw_hz,
+            coeffs.b0.abs() * count_size,
+            "lower the crossover or use a finer encoder".to_string(),
+        ),
+    };
     let min_ratio = design.checks.min_rate_ratio;
     let ok = ratio >= min_ratio;
-    check(
+    ck.record(
         "rate_ratio",
         ratio,
         min_ratio,
@@ -570,20 +625,10 @@ fn design_axis(
             )
         },
     );
-
-    // Voltage step one encoder count causes through the derivative path.
-    let step_volts = match gains {
-        Gains::Pd { kd, .. } => kd * rate * count_size,
-        Gains::Lead { coeffs, .. } => coeffs.b0.abs() * count_size,
-    };
     let share = design.checks.max_chatter_share;
-    let limit = share * design.supply.lowest_volts;
+    let limit = share * low;
     let ok = step_volts <= limit;
-    let suggestion = match gains {
-        Gains::Pd { .. } => "use kind = \"lead\" (a derivative with a low-pass), lengthen the settling time, or use a finer encoder",
-        Gains::Lead { .. } => "lower the crossover or use a finer encoder",
-    };
-    check(
+    ck.record(
         "derivative_chatter",
         step_volts,
         limit,
@@ -595,27 +640,40 @@ fn design_axis(
                 "one encoder count ({} {unit}) steps the voltage by {} V ({} % of the lowest supply)",
                 sig(count_size),
                 sig(step_volts),
-                sig(100.0 * step_volts / design.supply.lowest_volts)
+                sig(100.0 * step_volts / low)
             )
         } else {
             format!(
-                "one encoder count ({} {unit}) steps the voltage by {} V, more than {} x {} V = {} V; {suggestion}",
+                "one encoder count ({} {unit}) steps the voltage by {} V, more than {share} x {low} V = {} V (checks.max_chatter_share); {suggestion}",
                 sig(count_size),
                 sig(step_volts),
-                share,
-                design.supply.lowest_volts,
                 sig(limit)
             )
         },
     );
+    let cpt = a.moves.cruise_speed / rate / count_size;
+    ck.record(
+        "counts_per_tick",
+        cpt,
+        1.0,
+        "counts/tick",
+        cpt >= 1.0,
+        true,
+        format!(
+            "at cruise the wheel moves {} counts per tick{}",
+            sig(cpt),
+            if cpt >= 1.0 {
+                ""
+            } else {
+                ": the per-tick speed reading is coarser than the speed"
+            }
+        ),
+    );
 
-    // Peak feedforward voltage of a full-speed move at the lowest supply.
-    let peak = plant.bias_volts
-        + a.moves.cruise_speed / plant.gain
-        + plant.time_constant_s * a.moves.accel / plant.gain;
-    let low = design.supply.lowest_volts;
+    // Peak feedforward voltage of a full-speed move against the lowest supply.
+    let peak = tune::move_peak_volts(&plant, a.moves.cruise_speed, a.moves.accel);
     let ok = peak <= low;
-    check(
+    ck.record(
         "peak_move_volts",
         peak,
         low,
@@ -642,7 +700,7 @@ fn design_axis(
     // Stall guard: its time must fit the u16 tick counter.
     let ticks = (a.stall.max_time_s * rate).round();
     let ok = (1.0..=f64::from(u16::MAX)).contains(&ticks);
-    check(
+    ck.record(
         "stall_guard_ticks",
         ticks,
         f64::from(u16::MAX),
@@ -674,18 +732,19 @@ fn design_axis(
 // ---------------------------------------------------------------------------------------
 // Quantization
 
+/// The Rust expression of a `Coeff`.
+fn coeff_expr(c: ctrl_core::Coeff) -> String {
+    format!(
+        "::ctrl_core::Coeff::from_bits({}, {})",
+        c.mantissa(),
+        c.shift()
+    )
+}
+
 /// `x` as a `Coeff`: expression, stored value and relative error.
 fn q_coeff(x: f64) -> Result<(String, f64, f64), String> {
     let (c, rel) = ctrl_core::Coeff::from_f64(x).map_err(|e| format!("{e}"))?;
-    Ok((
-        format!(
-            "::ctrl_core::Coeff::from_bits({}, {})",
-            c.mantissa(),
-            c.shift()
-        ),
-        c.to_f64(),
-        rel,
-    ))
+    Ok((coeff_expr(c), c.to_f64(), rel))
 }
 
 /// `x` in a signed fixed-point format with `frac` fraction bits and `bits` total bits.
@@ -721,6 +780,31 @@ struct Builder<'a> {
 }
 
 impl Builder<'_> {
+    /// A constant converted elsewhere ([`sim::quantize_axis`]).
+    #[allow(clippy::too_many_arguments)]
+    fn held(
+        &mut self,
+        name: String,
+        format: &'static str,
+        q: sim::Quantized,
+        expr: String,
+        unit: &'static str,
+        user_value: String,
+        key: &str,
+    ) {
+        self.out.push(Constant {
+            name,
+            format,
+            value: q.wanted,
+            quantized: q.held,
+            rel_err: q.relative_error,
+            unit,
+            user_value,
+            expr,
+            key: key.to_string(),
+        });
+    }
+
     #[allow(clippy::too_many_arguments)]
     fn add(
         &mut self,
@@ -823,78 +907,114 @@ fn constants(design: &DesignFile, axes: &[AxisReport]) -> Result<Vec<Constant>, 
         let cpu = r.counts_per_unit;
         let ad = design.axis(r.axis);
         let loop_key = format!("{a}.loop");
-        match r.gains {
-            Gains::Pd { kp, kd, .. } => {
-                b.add(
-                    format!("{a}.kp"),
-                    "Coeff",
-                    kp / cpu,
-                    "V/count",
-                    format!("{} V/{u}", sig(kp)),
-                    &loop_key,
-                );
-                b.add(
-                    format!("{a}.kd_per_tick"),
-                    "Coeff",
-                    kd * rate / cpu,
-                    "V per count/tick",
-                    format!("Kd {} V per {u}/s, times {rate} Hz", sig(kd)),
-                    &loop_key,
-                );
-            }
-            Gains::Lead { coeffs, .. } => {
-                b.add(
-                    format!("{a}.lead_b0"),
-                    "Coeff",
-                    coeffs.b0 / cpu,
-                    "V/count",
-                    format!("{} V/{u}", sig(coeffs.b0)),
-                    &loop_key,
-                );
-                b.add(
-                    format!("{a}.lead_b1"),
-                    "Coeff",
-                    coeffs.b1 / cpu,
-                    "V/count",
-                    format!("{} V/{u}", sig(coeffs.b1)),
-                    &loop_key,
-                );
-                b.add(
-                    format!("{a}.lead_a1"),
-                    "Coeff",
-                    coeffs.a1,
-                    "1",
-                    sig(coeffs.a1),
-                    &loop_key,
-                );
-            }
-        }
         let p = r.plant;
         let pk = format!("{a}.plant");
-        b.add(
-            format!("{a}.kv"),
-            "Coeff",
-            rate / (p.gain * cpu),
-            "V per count/tick",
-            format!("1/K = {} V per {u}/s", sig(1.0 / p.gain)),
-            &pk,
-        );
-        b.add(
-            format!("{a}.ka"),
-            "Coeff",
-            p.time_constant_s * rate * rate / (p.gain * cpu),
-            "V per count/tick^2",
-            format!("T/K = {} V per {u}/s^2", sig(p.time_constant_s / p.gain)),
-            &pk,
-        );
-        b.add(
-            format!("{a}.bias_volts"),
-            "I16F16",
-            p.bias_volts,
-            "V",
-            format!("{} V", sig(p.bias_volts)),
-            &pk,
-        );
+        // PD gains and feedforward through the simulation's conversion, so the simulated
+        // firmware loop and the emitted constants cannot disagree.
+        let (kp, kd) = match r.gains {
+            Gains::Pd { kp, kd, .. } => (kp, kd),
+            Gains::Lead { .. } => (0.0, 0.0),
+        };
+        let loop_design = sim::LoopDesign {
+            kp,
+            kd,
+            derivative: sim::DerivativeForm::OnError,
+            feedforward: Some(sim::Feedforward::for_plant(&p)),
+        };
+        let units = sim::FirmwareUnits {
+            count_size: 1.0 / cpu,
+            rate_hz: rate,
+        };
+        match sim::quantize_axis(
+            &loop_design,
+            &units,
+            design.supply.highest_volts,
+            f64::INFINITY,
+        ) {
+            Ok(q) => {
+                if let Gains::Pd { .. } = r.gains {
+                    b.held(
+                        format!("{a}.kp"),
+                        "Coeff",
+                        q.report.kp,
+                        coeff_expr(q.pd.kp()),
+                        "V/count",
+                        format!("{} V/{u}", sig(kp)),
+                        &loop_key,
+                    );
+                    b.held(
+                        format!("{a}.kd_per_tick"),
+                        "Coeff",
+                        q.report.kd_per_tick,
+                        coeff_expr(q.pd.kd_per_tick()),
+                        "V per count/tick",
+                        format!("Kd {} V per {u}/s, times {rate} Hz", sig(kd)),
+                        &loop_key,
+                    );
+                }
+                b.held(
+                    format!("{a}.kv"),
+                    "Coeff",
+                    q.report.kv,
+                    coeff_expr(q.feedforward.kv()),
+                    "V per count/tick",
+                    format!("1/K = {} V per {u}/s", sig(1.0 / p.gain)),
+                    &pk,
+                );
+                b.held(
+                    format!("{a}.ka"),
+                    "Coeff",
+                    q.report.ka,
+                    coeff_expr(q.feedforward.ka()),
+                    "V per count/tick^2",
+                    format!("T/K = {} V per {u}/s^2", sig(p.time_constant_s / p.gain)),
+                    &pk,
+                );
+                b.held(
+                    format!("{a}.bias_volts"),
+                    "I16F16",
+                    q.report.bias_volts,
+                    format!(
+                        "::fixed::types::I16F16::from_bits({})",
+                        q.feedforward.bias_volts().to_bits()
+                    ),
+                    "V",
+                    format!("{} V", sig(p.bias_volts)),
+                    &pk,
+                );
+            }
+            Err(e) => b.errors.push(design.error(
+                &loop_key,
+                format!("cannot convert the {a} design to firmware units: {e}"),
+                None,
+            )),
+        }
+        if let Gains::Lead { coeffs, .. } = r.gains {
+            b.add(
+                format!("{a}.lead_b0"),
+                "Coeff",
+                coeffs.b0 / cpu,
+                "V/count",
+                format!("{} V/{u}", sig(coeffs.b0)),
+                &loop_key,
+            );
+            b.add(
+                format!("{a}.lead_b1"),
+                "Coeff",
+                coeffs.b1 / cpu,
+                "V/count",
+                format!("{} V/{u}", sig(coeffs.b1)),
+                &loop_key,
+            );
+            b.add(
+                format!("{a}.lead_a1"),
+                "Coeff",
+                coeffs.a1,
+                "1",
+                sig(coeffs.a1),
+                &loop_key,
+            );
+        }
         b.add(
             format!("{a}.stall_limit"),
             "I16F16",
@@ -1308,8 +1428,9 @@ fn render(
 ///
 /// Prints `cargo:rerun-if-changed=` for the design file, every log directory and every log,
 /// even when the design fails, so fixing the file reruns the script. On failure it prints
-/// each error (file, line, key, valid range) as a `cargo::error=` line and exits with
-/// status 1, without a panic or backtrace.
+/// each error (file, line, key, valid range) as a `cargo::error=` line and returns without
+/// writing the file; cargo (1.84 or later) then fails the build with those messages and
+/// nothing else (no panic, no backtrace).
 pub fn build_script(design_path: impl AsRef<Path>) {
     let path = design_path.as_ref();
     let result = emit(path);
@@ -1329,13 +1450,12 @@ pub fn build_script(design_path: impl AsRef<Path>) {
                 Some(d) => PathBuf::from(d),
                 None => {
                     println!("cargo::error=ctrl_design::emit::build_script: OUT_DIR is not set (call it from build.rs)");
-                    std::process::exit(1);
+                    return;
                 }
             };
             let file = out.join("constants.rs");
             if let Err(err) = std::fs::write(&file, &e.source) {
                 println!("cargo::error=cannot write {}: {err}", file.display());
-                std::process::exit(1);
             }
         }
         Err(f) => {
@@ -1346,7 +1466,6 @@ pub fn build_script(design_path: impl AsRef<Path>) {
             for e in &f.errors {
                 println!("cargo::error={}", one_line(&e.to_string()));
             }
-            std::process::exit(1);
         }
     }
 }
