@@ -24,6 +24,8 @@ use cortex_m_semihosting::{debug, hprintln};
 mod calib;
 #[cfg(feature = "paths")]
 mod paths;
+#[cfg(any(feature = "paths", feature = "size-tick", feature = "size-tick-f32"))]
+mod rover;
 #[cfg(any(feature = "size-tick", feature = "size-tick-f32"))]
 mod size;
 
@@ -134,6 +136,13 @@ fn main() -> ! {
     debug::exit(debug::EXIT_SUCCESS);
     #[allow(clippy::empty_loop)]
     loop {}
+}
+
+/// A bench setup step failed (outside any counted window): say so and exit with failure.
+#[cfg(feature = "paths")]
+pub fn report_setup_error(what: &str) {
+    hprintln!("setup error: {}", what);
+    debug::exit(debug::EXIT_FAILURE);
 }
 
 /// On panic: report failure through semihosting. The panic-free scan checks that nothing

@@ -1,15 +1,251 @@
-//! The measured ctrl-core paths (fixed point and the `f32` baseline).
-use crate::Path;
+//! The measured ctrl-core paths: fixed point and the `f32` baseline of the same maths,
+//! with the rover settings of [`crate::rover`].
+//!
+//! Every tick reads inputs that change from tick to tick (encoder counters that advance
+//! like a wheel following the move) and stores its output, so nothing is folded away.
+//! Both the N and the 2N run start from the same fresh state with both moves just started,
+//! so the per-tick figure is the mean of ticks N+1 ..= 2N: both profiles accelerating, no
+//! clamp or stall active (the common case of a running move).
 
-/// State of every path.
-pub struct State;
+use ctrl_core::drive::DriveState;
+use ctrl_core::float;
+use ctrl_core::lead::LeadState;
+use ctrl_core::pd::PdState;
+use ctrl_core::profile::Profile;
+use fixed::types::{I16F16, I32F32};
 
-impl State {
-    /// Fresh state.
-    pub fn fresh() -> Self {
-        State
+use crate::rover::*;
+use crate::{Bench, Path};
+
+/// Inputs that change every tick, standing in for sensor reads.
+pub struct Inputs {
+    /// Raw left counter (advances like a wheel moving forward).
+    left: u16,
+    /// Raw right counter (mirrored encoder: counts down moving forward).
+    right: u16,
+    /// Tracking error fed to the single loops, counts (fixed and f32 copies).
+    error: I16F16,
+    error_f32: f32,
+}
+
+impl Inputs {
+    const fn new() -> Self {
+        Inputs {
+            left: 1000,
+            right: 2000,
+            error: I16F16::from_bits(3 << 14),
+            error_f32: 0.75,
+        }
+    }
+    /// Next error: a small ramp (0.75, 0.875, ... counts) that never clamps.
+    #[inline(always)]
+    fn next_error(&mut self) -> I16F16 {
+        self.error = I16F16::from_bits(self.error.to_bits().wrapping_add(1 << 13));
+        self.error
+    }
+    #[inline(always)]
+    fn next_error_f32(&mut self) -> f32 {
+        self.error_f32 += 0.125;
+        self.error_f32
+    }
+    #[inline(always)]
+    fn next_counts(&mut self) -> (u16, u16) {
+        // 2 counts forward per tick on both wheels, rotating slightly (left 2, right -3).
+        self.left = self.left.wrapping_add(2);
+        self.right = self.right.wrapping_sub(3);
+        (self.left, self.right)
     }
 }
 
+/// State of every path.
+pub struct State {
+    inputs: Inputs,
+    pd: PdState,
+    pd_f32: float::PdState,
+    lead: LeadState,
+    lead_f32: float::LeadState,
+    profile: Profile,
+    profile_f32: ProfileF32,
+    drive: DriveState,
+    drive_f32: float::DriveState,
+    /// Last outputs (stored every tick so the work is observable).
+    out: [I16F16; 2],
+    out_f32: [f32; 2],
+    out_sp: I32F32,
+    out_sp_f32: f32,
+}
+
+impl State {
+    /// Fresh state: loops at rest, both moves just started on every profile.
+    pub fn fresh() -> Self {
+        let mut s = State {
+            inputs: Inputs::new(),
+            pd: PdState::new(),
+            pd_f32: float::PdState::new(),
+            lead: LeadState::new(),
+            lead_f32: float::LeadState::new(),
+            profile: Profile::new(),
+            profile_f32: ProfileF32::new(),
+            drive: DriveState::new(),
+            drive_f32: float::DriveState::new(LOW_VOLTS as f32),
+            out: [I16F16::ZERO; 2],
+            out_f32: [0.0; 2],
+            out_sp: I32F32::ZERO,
+            out_sp_f32: 0.0,
+        };
+        // A rejected move would leave a profile at rest; the paths still run and the
+        // firmware reports it, so the figures cannot silently describe an idle profile.
+        let ok = s.profile.start(FWD_MOVE).is_ok()
+            & s.drive.forward_mut().start(FWD_MOVE).is_ok()
+            & s.drive.rotation_mut().start(ROT_MOVE).is_ok()
+            & s.drive_f32.forward.profile.start(FWD_MOVE).is_ok()
+            & s.drive_f32.rotation.profile.start(ROT_MOVE).is_ok();
+        if !ok {
+            crate::report_setup_error("a bench move was rejected by Profile::start");
+        }
+        s.profile_f32.start(1364.2, 2.18268, 0.0130961);
+        DRIVE.set_battery(&mut s.drive, fx(BATTERY));
+        s.drive_f32.supply.set_battery(BATTERY as f32);
+        s
+    }
+}
+
+#[inline(never)]
+fn pd_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error();
+    s.out[0] = PD.update(&mut s.pd, e, I16F16::ZERO);
+}
+
+#[inline(never)]
+fn pd_f32(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error_f32();
+    s.out_f32[0] = PD_F32.update(&mut s.pd_f32, e, 0.0);
+}
+
+#[inline(never)]
+fn lead_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error();
+    s.out[0] = LEAD.update(&mut s.lead, e);
+}
+
+#[inline(never)]
+fn lead_f32(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error_f32();
+    s.out_f32[0] = LEAD_F32.update(&mut s.lead_f32, e);
+}
+
+#[inline(never)]
+fn profile_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    let sp = s.profile.step();
+    s.out_sp = sp.position;
+    s.out[0] = I16F16::from_bits((sp.speed.to_bits() >> 16) as i32);
+}
+
+#[inline(never)]
+fn profile_f32(b: &mut Bench) {
+    let s = &mut b.p;
+    let (pos, speed) = s.profile_f32.step();
+    s.out_sp_f32 = pos;
+    s.out_f32[0] = speed;
+}
+
+#[inline(never)]
+fn drive_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    let (l, r) = s.inputs.next_counts();
+    s.out = DRIVE.tick(&mut s.drive, l, r);
+}
+
+#[inline(never)]
+fn drive_f32(b: &mut Bench) {
+    let s = &mut b.p;
+    let (l, r) = s.inputs.next_counts();
+    s.out_f32 = DRIVE_F32.tick(&mut s.drive_f32, l, r);
+}
+
 /// Measured paths, in run order.
-pub static PATHS: &[Path] = &[];
+pub static PATHS: &[Path] = &[
+    Path { name: "pd_fixed", tick: pd_fixed },
+    Path { name: "pd_f32", tick: pd_f32 },
+    Path { name: "lead_fixed", tick: lead_fixed },
+    Path { name: "lead_f32", tick: lead_f32 },
+    Path { name: "profile_fixed", tick: profile_fixed },
+    Path { name: "profile_f32", tick: profile_f32 },
+    Path { name: "drive_fixed", tick: drive_fixed },
+    Path { name: "drive_f32", tick: drive_f32 },
+];
+
+/// The f32 baseline of [`Profile::step`]'s maths, kept in the bench because ctrl-core's
+/// `float` path shares the fixed-point profile. Same structure as the fixed-point plan:
+/// entry and exit speed envelopes advanced by the acceleration each tick, the cruise
+/// level clamped between them, position advanced by the mean of old and new speed.
+pub struct ProfileF32 {
+    tick: u32,
+    ticks: u32,
+    accel: f32,
+    entry_up: f32,
+    entry_down: f32,
+    exit_up: f32,
+    exit_down: f32,
+    level: f32,
+    speed: f32,
+    position: f32,
+}
+
+impl ProfileF32 {
+    const fn new() -> Self {
+        ProfileF32 {
+            tick: 0,
+            ticks: 0,
+            accel: 0.0,
+            entry_up: 0.0,
+            entry_down: 0.0,
+            exit_up: 0.0,
+            exit_down: 0.0,
+            level: 0.0,
+            speed: 0.0,
+            position: 0.0,
+        }
+    }
+
+    /// Plans a rest-to-rest move (outside the measured window; divides).
+    fn start(&mut self, distance: f32, cruise: f32, accel: f32) {
+        let ramp = cruise / accel;
+        let ticks = (distance / cruise + ramp) as u32;
+        self.tick = 0;
+        self.ticks = ticks;
+        self.accel = accel;
+        self.entry_up = 0.0;
+        self.entry_down = 0.0;
+        self.exit_up = accel * ticks as f32;
+        self.exit_down = -accel * ticks as f32;
+        self.level = cruise;
+    }
+
+    /// One tick: returns (position, speed).
+    #[inline]
+    fn step(&mut self) -> (f32, f32) {
+        let prev = self.speed;
+        let next = if self.tick < self.ticks {
+            self.tick += 1;
+            let a = self.accel;
+            self.entry_up += a;
+            self.entry_down -= a;
+            self.exit_up -= a;
+            self.exit_down += a;
+            let lower = self.entry_down.max(self.exit_down);
+            let upper = self.entry_up.min(self.exit_up);
+            self.level.max(lower).min(upper)
+        } else {
+            0.0
+        };
+        self.position += 0.5 * (prev + next);
+        self.speed = next;
+        (self.position, self.speed)
+    }
+}
