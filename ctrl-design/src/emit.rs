@@ -198,7 +198,7 @@ pub fn emit(design_path: &Path) -> Result<Emission, EmitFailure> {
     for c in &checks {
         if !c.passed && !c.warning {
             let key = check_key(&design, c);
-            errors.push(design.error(&key, c.detail.clone(), None));
+            errors.push(design.error(&key, c.detail.clone(), Some(check_valid(c))));
         } else if !c.passed {
             warnings.push(format!(
                 "{}{}: {}",
@@ -252,6 +252,28 @@ pub fn emit(design_path: &Path) -> Result<Emission, EmitFailure> {
     })
 }
 
+/// The valid range of a check, in words.
+fn check_valid(c: &Check) -> String {
+    match c.name {
+        "discrete_stable" => "every closed-loop pole magnitude below 1".to_string(),
+        "rate_ratio" => format!(
+            "a loop rate at least {}x the closed-loop bandwidth",
+            sig(c.limit)
+        ),
+        "stall_guard_ticks" => "1 to 65535 ticks".to_string(),
+        _ => format!(
+            "{} {} {}",
+            c.name.replace('_', " "),
+            if c.limit >= 0.0 {
+                "at most"
+            } else {
+                "at least"
+            },
+            format_args!("{} {}", sig(c.limit), c.unit)
+        ),
+    }
+}
+
 /// The design-file key a failed check points at.
 fn check_key(design: &DesignFile, c: &Check) -> String {
     let axis = c.axis.unwrap_or("drive");
@@ -267,7 +289,11 @@ fn check_key(design: &DesignFile, c: &Check) -> String {
     match c.name {
         "kd_not_negative" => loop_key("settling_time_s"),
         "lead_feasible" => loop_key("phase_margin_deg"),
-        "discrete_stable" | "overshoot" | "rate_ratio" => match c.axis.map(target) {
+        "overshoot" => match c.axis.map(target) {
+            Some(LoopTarget::Lead { .. }) => loop_key("phase_margin_deg"),
+            _ => loop_key("damping"),
+        },
+        "discrete_stable" | "rate_ratio" => match c.axis.map(target) {
             Some(LoopTarget::Lead { .. }) => loop_key("crossover_rad_s"),
             _ => loop_key("settling_time_s"),
         },
@@ -351,7 +377,7 @@ fn tune_error(design: &DesignFile, axis: &str, e: &tune::DesignError) -> DesignE
     };
     design.error(
         &key,
-        format!("{} cannot be met: {reason}", sig(value)),
+        format!("the value {} cannot be met: {reason}", sig(value)),
         Some(valid),
     )
 }
@@ -589,7 +615,7 @@ fn design_axis(
                             sig(f.time_constant_s),
                             sig(f.step_volts)
                         ),
-                        None => "lengthen the settling time or use a finer encoder".to_string(),
+                        None => "use kind = \"lead\" (a derivative with a low-pass), lengthen the settling time, or use a finer encoder".to_string(),
                     };
                     (c.rate_per_bandwidth, c.derivative_step_volts, suggestion)
                 }

@@ -17,6 +17,9 @@ fn main() {
         std::process::exit(1);
     }
     println!("cargo:rustc-link-search={}", out.display());
+    // cortex-m-rt's linker script (here rather than in RUSTFLAGS, so a RUSTFLAGS set in the
+    // environment, as CI does, cannot drop it).
+    println!("cargo:rustc-link-arg-bins=-Tlink.x");
     println!("cargo:rerun-if-changed=memory.x");
 
     println!("cargo:rerun-if-env-changed=CTRL_DESIGN_FILE");
