@@ -468,7 +468,7 @@ impl Profile {
         let q = sign * (2 * target + half - self.pos2);
         let w0 = sign * u;
         let m = (q - w0 - ve) / 2;
-        let found = solve(w0, ve, vc, a, m)?;
+        let found = solve(w0, ve, vc, a, m, q / 2)?;
         let n = i128::from(found.ticks);
         self.plan = Plan {
             negative,
@@ -724,6 +724,20 @@ impl Shape {
         (first, last)
     }
 
+    /// Highest interior `U[k]` (where the two rising lines meet); `sum(c)` is the same
+    /// for every `c` at or above it. `None` without interior ticks.
+    fn peak(&self) -> Option<i128> {
+        if self.n < 2 {
+            return None;
+        }
+        let meet = floor_div(self.ve - self.w0 + self.n * self.a, 2 * self.a);
+        let upper = |k: i128| {
+            let k = k.clamp(1, self.n - 1);
+            (self.w0 + k * self.a).min(self.ve + (self.n - k) * self.a)
+        };
+        Some(upper(meet).max(upper(meet + 1)))
+    }
+
     /// Number of ticks at the level (the slope of `sum` just above `c`).
     fn slope(&self, c: i128) -> i128 {
         let (first, last) = self.at_level(c);
@@ -740,27 +754,48 @@ struct Solution {
 }
 
 /// Smallest `K ≥ from` (up to [`MAX_TICKS`]) for which `fits(K)`, assuming `fits` is
-/// false then true along `K`.
-fn first_fit(from: i128, fits: impl Fn(i128) -> bool) -> Result<i128, Error> {
+/// false then true along `K`. `hint` is a guess at or just below the answer (any value
+/// gives the same answer; a good one saves evaluations).
+fn first_fit(from: i128, hint: i128, fits: impl Fn(i128) -> bool) -> Result<i128, Error> {
     let max = i128::from(MAX_TICKS);
     if from > max {
         return Err(Error::OutOfRange);
     }
-    if fits(from) {
-        return Ok(from);
-    }
-    let mut lo = from;
-    let mut stride = 1;
-    let mut hi = loop {
-        let hi = (lo + stride).min(max);
-        if fits(hi) {
-            break hi;
+    let guess = hint.clamp(from, max);
+    // Bracket: `lo` does not fit (or is `from - 1`), `hi` fits.
+    let (mut lo, mut hi) = if fits(guess) {
+        let mut hi = guess;
+        let mut stride = 1;
+        loop {
+            if hi == from {
+                return Ok(from);
+            }
+            let probe = (hi - stride).max(from);
+            if !fits(probe) {
+                break (probe, hi);
+            }
+            hi = probe;
+            stride *= 2;
         }
-        if hi == max {
-            return Err(Error::OutOfRange);
+    } else {
+        let mut lo = guess;
+        let mut stride = 1;
+        let mut probes = 0;
+        loop {
+            let probe = (lo + stride).min(max);
+            if fits(probe) {
+                break (lo, probe);
+            }
+            if probe == max {
+                return Err(Error::OutOfRange);
+            }
+            lo = probe;
+            probes += 1;
+            // The guess is usually one or two ticks short: step by one twice first.
+            if probes >= 2 {
+                stride *= 2;
+            }
         }
-        lo = hi;
-        stride *= 2;
     };
     while hi - lo > 1 {
         let mid = lo + (hi - lo) / 2;
@@ -773,53 +808,94 @@ fn first_fit(from: i128, fits: impl Fn(i128) -> bool) -> Result<i128, Error> {
     Ok(hi)
 }
 
+/// The continuous closed-form time (module docs), rounded down: a guess at or just below
+/// the smallest `K`, for `0 ≤ w0 ≤ vc` and `d` (LSB) at least the ramp from `w0` to `ve`.
+/// With trapezoid phases `T = ((vc − w0)² + (vc − ve)² + 2 a d) / (2 a vc)` (the three
+/// phase times over one denominator). `None` outside that case or on overflow.
+fn time_hint(w0: i128, ve: i128, vc: i128, a: i128, d: i128) -> Option<i128> {
+    if w0 < 0 || w0 > vc || d < 0 {
+        return None;
+    }
+    let vc2 = vc.checked_mul(vc)?;
+    let ramps = (vc2 - w0 * w0 + vc2 - ve * ve) / (2 * a);
+    if d >= ramps {
+        let num = ((vc - w0) * (vc - w0))
+            .checked_add((vc - ve) * (vc - ve))?
+            .checked_add(a.checked_mul(d)?.checked_mul(2)?)?;
+        num.checked_div(a.checked_mul(vc)?.checked_mul(2)?)
+    } else {
+        let sq = a.checked_mul(d)?.checked_add(w0 * w0 / 2 + ve * ve / 2)?;
+        let vp = i128::try_from(u128::try_from(sq).ok()?.isqrt()).ok()?;
+        (2 * vp - w0 - ve).checked_div(a)
+    }
+}
+
 /// Plans the interior sum `m` (module docs): smallest `K`, then the level and the bump.
-fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128) -> Result<Solution, Error> {
+/// `d` is the distance (LSB, move direction), only used for the first guess of `K`.
+fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128, d: i128) -> Result<Solution, Error> {
     let shape = |n| Shape { w0, ve, a, n };
     let k_min = ceil_div((w0 - ve).abs(), a).max(1);
-    let n_up = first_fit(k_min, |n| shape(n).sum(vc) >= m)?;
+    let hint = time_hint(w0, ve, vc, a, d).unwrap_or(0);
+    let n_up = first_fit(k_min, hint, |n| shape(n).sum(vc) >= m)?;
     let (n, floor) = if shape(n_up).sum(0) <= m {
         (n_up, 0)
     } else if ve > 0 {
         // Would need to reverse to arrive at a non-zero end speed.
         return Err(Error::OutOfRange);
     } else {
-        (first_fit(n_up, |n| shape(n).sum(-vc) <= m)?, -vc)
+        (first_fit(n_up, 0, |n| shape(n).sum(-vc) <= m)?, -vc)
     };
     let sh = shape(n);
     // Largest level c in [floor, vc] with sum(c) <= m; sum(floor) <= m <= sum(vc).
-    let level = if sh.sum(vc) <= m {
-        vc
-    } else {
-        let (mut lo, mut hi) = (floor, vc);
-        let mut s_lo = sh.sum(lo);
-        let mut newton = true;
-        while hi - lo > 1 {
-            let slope = sh.slope(lo);
-            if m - s_lo < slope {
-                break; // sum(lo + 1) = s_lo + slope > m
+    // Above the peak of U nothing changes (triangular moves), so search below it.
+    let top = sh.peak().map_or(vc, |p| p.clamp(floor, vc));
+    let (mut lo, mut hi) = (floor, top);
+    let (mut s_lo, mut s_hi) = (None, sh.sum(top));
+    let mut newton = true;
+    while s_hi > m && hi - lo > 1 {
+        let width = hi - lo;
+        let mut cand = lo + width / 2;
+        if newton {
+            match s_lo {
+                // First step from the top (near the answer at the smallest K): the secant
+                // of the last LSB below `hi`.
+                None => {
+                    let slope = sh.slope(hi - 1);
+                    if slope > 0 {
+                        cand = hi - ceil_div(s_hi - m, slope);
+                    }
+                }
+                // Then Newton from below: `sum` is linear with this slope just above `lo`.
+                Some(s) => {
+                    let slope = sh.slope(lo);
+                    if m - s < slope {
+                        break; // sum(lo + 1) = s + slope > m: lo is the answer
+                    }
+                    if slope > 0 {
+                        cand = lo + (m - s) / slope;
+                    }
+                }
             }
-            let width = hi - lo;
-            let mut cand = if newton && slope > 0 {
-                lo + (m - s_lo) / slope
-            } else {
-                lo + width / 2
-            };
-            if cand <= lo || cand >= hi {
-                cand = lo + width / 2;
-            }
-            let s = sh.sum(cand);
-            if s <= m {
-                lo = cand;
-                s_lo = s;
-            } else {
-                hi = cand;
-            }
-            newton = 2 * (hi - lo) <= width;
         }
-        lo
+        if cand <= lo || cand >= hi {
+            cand = lo + width / 2;
+        }
+        let s = sh.sum(cand);
+        if s <= m {
+            lo = cand;
+            s_lo = Some(s);
+        } else {
+            hi = cand;
+            s_hi = s;
+        }
+        newton = 2 * (hi - lo) <= width;
+    }
+    let (level, s_level) = if s_hi <= m {
+        (hi, s_hi)
+    } else {
+        (lo, s_lo.unwrap_or_else(|| sh.sum(lo)))
     };
-    let bump = m - sh.sum(level);
+    let bump = m - s_level;
     let (bump_from, _) = sh.at_level(level);
     Ok(Solution {
         ticks: u64::try_from(n).map_err(|_| Error::OutOfRange)?,
@@ -827,4 +903,46 @@ fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128) -> Result<Solution, Err
         bump_from: u64::try_from(bump_from.max(0)).map_err(|_| Error::OutOfRange)?,
         bump: u64::try_from(bump).map_err(|_| Error::OutOfRange)?,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn first_fit_gives_the_same_answer_for_any_hint() {
+        for answer in [1i128, 2, 37, 1000, 1 << 33] {
+            for hint in [0, 1, answer - 1, answer, answer + 1, answer * 3, 1 << 45] {
+                assert_eq!(
+                    first_fit(1, hint, |k| k >= answer),
+                    Ok(answer),
+                    "hint {hint}"
+                );
+            }
+        }
+        assert_eq!(first_fit(50, 10, |k| k >= 37), Ok(50));
+        assert_eq!(first_fit(1, 5, |_| false), Err(Error::OutOfRange));
+    }
+
+    #[test]
+    fn closed_form_sum_matches_a_plain_sum() {
+        // Small shapes, every level: the piecewise closed form against summing w[k].
+        for (w0, ve, a) in [(0, 0, 3), (5, 2, 3), (-7, 4, 2), (9, 9, 1), (2, 11, 4)] {
+            let k_min = ceil_div(i128::abs(w0 - ve), a).max(1);
+            for n in k_min..k_min + 12 {
+                let sh = Shape { w0, ve, a, n };
+                for c in -20..30 {
+                    let plain: i128 = (1..n).map(|k| sh.value(k, c)).sum();
+                    assert_eq!(sh.sum(c), plain, "w0 {w0} ve {ve} a {a} n {n} c {c}");
+                    let at: i128 = (1..n)
+                        .filter(|&k| sh.value(k, c + 1) - sh.value(k, c) == 1)
+                        .count() as i128;
+                    assert_eq!(sh.slope(c), at, "slope: w0 {w0} ve {ve} a {a} n {n} c {c}");
+                    if let Some(p) = sh.peak() {
+                        assert_eq!(sh.sum(c.max(p)), sh.sum(c.max(p) + 5));
+                    }
+                }
+            }
+        }
+    }
 }
