@@ -738,6 +738,20 @@ impl Shape {
         Some(upper(meet).max(upper(meet + 1)))
     }
 
+    /// Lowest interior `L[k]` (where the two falling lines meet); `sum(c)` is the same for
+    /// every `c` at or below it. `None` without interior ticks.
+    fn valley(&self) -> Option<i128> {
+        if self.n < 2 {
+            return None;
+        }
+        let meet = floor_div(self.w0 - self.ve + self.n * self.a, 2 * self.a);
+        let lower = |k: i128| {
+            let k = k.clamp(1, self.n - 1);
+            (self.w0 - k * self.a).max(self.ve - (self.n - k) * self.a)
+        };
+        Some(lower(meet).min(lower(meet + 1)))
+    }
+
     /// Number of ticks at the level (the slope of `sum` just above `c`).
     fn slope(&self, c: i128) -> i128 {
         let (first, last) = self.at_level(c);
@@ -813,7 +827,14 @@ fn first_fit(from: i128, hint: i128, fits: impl Fn(i128) -> bool) -> Result<i128
 /// With trapezoid phases `T = ((vc − w0)² + (vc − ve)² + 2 a d) / (2 a vc)` (the three
 /// phase times over one denominator). `None` outside that case or on overflow.
 fn time_hint(w0: i128, ve: i128, vc: i128, a: i128, d: i128) -> Option<i128> {
-    if w0 < 0 || w0 > vc || d < 0 {
+    if w0 < 0 {
+        // Moving away: brake to rest (`|w0|/a`, going `w0²/(2a)` further away), then the
+        // whole way from rest.
+        let w2 = w0.checked_mul(w0)?;
+        let from_rest = time_hint(0, ve, vc, a, d.checked_add(w2 / (2 * a))?)?;
+        return from_rest.checked_add(-w0 / a);
+    }
+    if w0 > vc || d < 0 {
         return None;
     }
     let vc2 = vc.checked_mul(vc)?;
@@ -835,22 +856,50 @@ fn time_hint(w0: i128, ve: i128, vc: i128, a: i128, d: i128) -> Option<i128> {
 fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128, d: i128) -> Result<Solution, Error> {
     let shape = |n| Shape { w0, ve, a, n };
     let k_min = ceil_div((w0 - ve).abs(), a).max(1);
-    let hint = time_hint(w0, ve, vc, a, d).unwrap_or(0);
-    let n_up = first_fit(k_min, hint, |n| shape(n).sum(vc) >= m)?;
-    let (n, floor) = if shape(n_up).sum(0) <= m {
-        (n_up, 0)
-    } else if ve > 0 {
-        // Would need to reverse to arrive at a non-zero end speed.
-        return Err(Error::OutOfRange);
+    // Brake through zero, then the way back as a move from rest: a first guess of K
+    // for a reversal.
+    let back = || {
+        (w0 >= 0)
+            .then(|| w0.checked_mul(w0))
+            .flatten()
+            .and_then(|w2| time_hint(0, 0, vc, a, w2 / (2 * a) - d))
+            .map_or(0, |t| t + w0 / a)
+    };
+    let reverse = |from| -> Result<(i128, i128), Error> {
+        Ok((first_fit(from, back(), |n| shape(n).sum(-vc) <= m)?, -vc))
+    };
+    // Even the slowest forward profile overshoots: a reversal (the forward search would
+    // only find that out after a full search over K). Checked again below.
+    let early = if ve == 0 && shape(k_min).sum(0) > m {
+        reverse(k_min).ok().filter(|&(n, _)| shape(n).sum(vc) >= m)
     } else {
-        (first_fit(n_up, 0, |n| shape(n).sum(-vc) <= m)?, -vc)
+        None
+    };
+    let (n, floor) = match early {
+        Some(found) => found,
+        None => {
+            let hint = time_hint(w0, ve, vc, a, d).unwrap_or(0);
+            let n_up = first_fit(k_min, hint, |n| shape(n).sum(vc) >= m)?;
+            if shape(n_up).sum(0) <= m {
+                (n_up, 0)
+            } else if ve > 0 {
+                // Would need to reverse to arrive at a non-zero end speed.
+                return Err(Error::OutOfRange);
+            } else {
+                reverse(n_up)?
+            }
+        }
     };
     let sh = shape(n);
     // Largest level c in [floor, vc] with sum(c) <= m; sum(floor) <= m <= sum(vc).
     // Above the peak of U nothing changes (triangular moves), so search below it.
+    // Likewise below the valley of L (a reversal that never reaches -vc).
     let top = sh.peak().map_or(vc, |p| p.clamp(floor, vc));
+    let floor = sh.valley().map_or(floor, |v| v.clamp(floor, top));
     let (mut lo, mut hi) = (floor, top);
-    let (mut s_lo, mut s_hi) = (None, sh.sum(top));
+    // A reversal cruises back near `-vc`: there, start with Newton from below.
+    let mut s_lo = (floor < 0).then(|| sh.sum(floor));
+    let mut s_hi = sh.sum(top);
     let mut newton = true;
     while s_hi > m && hi - lo > 1 {
         let width = hi - lo;
