@@ -245,7 +245,7 @@ impl Log {
         let Some((header_line, header)) = header else {
             return Err(input_err(
                 name,
-                None,
+                Some(1),
                 None,
                 format!(
                     "the file is empty; expected a header row with columns {}, {} and {} or {}",
@@ -325,6 +325,14 @@ impl Log {
             volts.push(vals[1]);
             signal.push(vals[2]);
             row_lines.push(line_no);
+        }
+        if time_s.is_empty() {
+            return Err(input_err(
+                name,
+                Some(header_line),
+                None,
+                "the log has a header but no data rows; it needs at least two rows".into(),
+            ));
         }
         let log = Log {
             name: name.to_string(),

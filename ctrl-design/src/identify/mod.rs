@@ -101,7 +101,8 @@ pub struct LogFit {
     /// Whether the wheel moved (step mode: travel after the step beyond three counts or
     /// three noise levels; excitation mode: always true).
     pub moved: bool,
-    /// Excitation mode with two or more logs: this log's own gain, units/s per volt.
+    /// Excitation mode, two or more logs, this log alone identifiable (two or more nonzero
+    /// voltage magnitudes): its own gain, units/s per volt.
     pub gain: Option<f64>,
     /// This log's own time constant (step fit, or excitation fit of this log alone), s.
     pub time_constant_s: Option<f64>,
@@ -621,6 +622,19 @@ fn log_warnings(
             }
         }
     }
+    // Clipping (speed logs): the extreme value repeated exactly for a run of rows that the
+    // signal entered while still changing fast, as a sensor or a limiter at its end stop does.
+    let mut clipped_run_found = false;
+    if log.kind == SignalKind::Speed {
+        if let Some((first, last, value)) = flat_extreme_run(log, t, dt, q) {
+            clipped_run_found = true;
+            w.push(format!(
+                "{name}: clipped or saturated: speed held exactly at {value} {unit}/s on lines {}-{}, entered while still rising; exclude that segment or lower the voltage",
+                log.lines.get(first).copied().unwrap_or(0),
+                log.lines.get(last).copied().unwrap_or(0),
+            ));
+        }
+    }
     // Clipping: measured speed pinned at its extreme while the model wants more.
     let sres = fit.residual_rms;
     let mpeak = curves.measured.iter().fold(0.0f64, |a, &b| a.max(b.abs()));
@@ -643,7 +657,7 @@ fn log_warnings(
             } else {
                 run = 0;
             }
-            if run >= min_run && !reported {
+            if run >= min_run && !reported && !clipped_run_found {
                 reported = true;
                 let t0 = curves.time_s.get(first).copied().unwrap_or(0.0);
                 w.push(format!(
@@ -656,6 +670,44 @@ fn log_warnings(
     w
 }
 
+/// Longest run (first row, last row, value) of rows holding a speed log's largest or smallest
+/// value exactly, at least 10 rows long, entered with a change over the preceding `T/5`
+/// larger than the noise, the resolution and 2 % of the value.
+fn flat_extreme_run(log: &Log, t: f64, dt: f64, q: f64) -> Option<(usize, usize, f64)> {
+    let s = &log.signal;
+    let hi = s.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let lo = s.iter().copied().fold(f64::INFINITY, f64::min);
+    let sigma = noise_level(s);
+    let m = ((t / (5.0 * dt)).round() as usize).max(3);
+    let mut best: Option<(usize, usize, f64)> = None;
+    for ext in [hi, lo] {
+        if ext == 0.0 {
+            continue;
+        }
+        let tol = 1e-9 * ext.abs();
+        let mut k = 0;
+        while k < s.len() {
+            if (s[k] - ext).abs() <= tol {
+                let start = k;
+                while k < s.len() && (s[k] - ext).abs() <= tol {
+                    k += 1;
+                }
+                let len = k - start;
+                let entered_fast = start >= m
+                    && (s[start] - s[start - m]).abs()
+                        > (5.0 * sigma).max(3.0 * q).max(0.02 * ext.abs());
+                let longer = best.is_none_or(|(a, b, _)| len > b - a + 1);
+                if len >= 10 && entered_fast && longer {
+                    best = Some((start, k - 1, ext));
+                }
+            } else {
+                k += 1;
+            }
+        }
+    }
+    best
+}
+
 /// Excitation mode: the discrete first-order model fitted over whole logs (see the module
 /// docs). Works for any voltage history with at least two different nonzero voltage
 /// magnitudes across the logs.
@@ -664,13 +716,7 @@ pub fn identify_excitation(logs: &[Log], opts: &Options) -> Result<Identificatio
         return Err(no_logs());
     }
     let unit = unit_name(opts);
-    let mut mags: Vec<f64> = logs
-        .iter()
-        .flat_map(|l| l.volts.iter().map(|v| v.abs()))
-        .filter(|v| *v > 0.0)
-        .collect();
-    mags.sort_by(f64::total_cmp);
-    mags.dedup_by(|a, b| (*a - *b).abs() <= 1e-9 * b.abs());
+    let mags = voltage_magnitudes(logs.iter());
     if mags.len() < 2 {
         return Err(IdentifyError::Unidentifiable {
             message: format!(
@@ -693,7 +739,13 @@ pub fn identify_excitation(logs: &[Log], opts: &Options) -> Result<Identificatio
     })?;
     let singles: Vec<Option<ModelParams>> = if logs.len() >= 2 {
         logs.par_iter()
-            .map(|l| fit_joint(&[l]).ok().map(|f| f.params))
+            .map(|l| {
+                if voltage_magnitudes(std::iter::once(l)).len() >= 2 {
+                    fit_joint(&[l]).ok().map(|f| f.params)
+                } else {
+                    None
+                }
+            })
             .collect()
     } else {
         vec![None]
@@ -726,6 +778,17 @@ pub fn identify_excitation(logs: &[Log], opts: &Options) -> Result<Identificatio
         },
         Some(&initial),
     )
+}
+
+/// Distinct nonzero voltage magnitudes in the logs, ascending.
+fn voltage_magnitudes<'a>(logs: impl Iterator<Item = &'a Log>) -> Vec<f64> {
+    let mut mags: Vec<f64> = logs
+        .flat_map(|l| l.volts.iter().map(|v| v.abs()))
+        .filter(|v| *v > 0.0)
+        .collect();
+    mags.sort_by(f64::total_cmp);
+    mags.dedup_by(|a, b| (*a - *b).abs() <= 1e-9 * b.abs());
+    mags
 }
 
 /// Output-error fit from the equation-error start, with a fallback start when the
