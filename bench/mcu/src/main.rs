@@ -18,7 +18,7 @@
 use core::hint::black_box;
 use core::sync::atomic::{AtomicU32, Ordering};
 
-use cortex_m_rt::entry;
+use cortex_m_rt::{entry, exception, ExceptionFrame};
 use cortex_m_semihosting::{debug, hprintln};
 
 mod calib;
@@ -51,7 +51,9 @@ pub extern "C" fn bench_marker_end() {
     MARK.store(2, Ordering::Relaxed);
 }
 
-/// The state of every path, built fresh (outside the counted window) before each run.
+/// The state of every path, copied from one template (outside the counted window) before
+/// each run.
+#[derive(Clone)]
 pub struct Bench {
     /// Calibration paths need nothing; this keeps the struct non-empty.
     pub calls: u32,
@@ -101,10 +103,10 @@ fn window(state: &mut Bench, tick: fn(&mut Bench), n: u32) {
     bench_marker_end();
 }
 
-/// Runs one path for N and for 2N ticks, each from a fresh state.
-fn measure(p: &Path) {
+/// Runs one path for N and for 2N ticks, each from a copy of the same fresh state.
+fn measure(p: &Path, template: &Bench) {
     for n in [N, 2 * N] {
-        let mut state = Bench::fresh();
+        let mut state = template.clone();
         window(&mut state, p.tick, n);
         black_box(&mut state);
     }
@@ -122,13 +124,14 @@ fn main() -> ! {
     announce(calib::PATHS);
     #[cfg(feature = "paths")]
     announce(paths::PATHS);
+    let template = Bench::fresh();
     hprintln!("begin");
     for p in calib::PATHS {
-        measure(p);
+        measure(p, &template);
     }
     #[cfg(feature = "paths")]
     for p in paths::PATHS {
-        measure(p);
+        measure(p, &template);
     }
     #[cfg(any(feature = "size-tick", feature = "size-tick-f32"))]
     size::once();
@@ -142,6 +145,21 @@ fn main() -> ! {
 #[cfg(feature = "paths")]
 pub fn report_setup_error(what: &str) {
     hprintln!("setup error: {}", what);
+    debug::exit(debug::EXIT_FAILURE);
+}
+
+/// A fault (for example a stack overflow) ends the run with failure instead of spinning,
+/// so the tool does not wait for its timeout while the execution log grows.
+#[exception]
+unsafe fn HardFault(_frame: &ExceptionFrame) -> ! {
+    debug::exit(debug::EXIT_FAILURE);
+    #[allow(clippy::empty_loop)]
+    loop {}
+}
+
+/// Any other exception: the same.
+#[exception]
+unsafe fn DefaultHandler(_irq: i16) {
     debug::exit(debug::EXIT_FAILURE);
 }
 

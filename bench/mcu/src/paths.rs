@@ -2,22 +2,30 @@
 //! with the rover settings of [`crate::rover`].
 //!
 //! Every tick reads inputs that change from tick to tick (encoder counters that advance
-//! like a wheel following the move) and stores its output, so nothing is folded away.
+//! like wheels following the moves, see [`Inputs::next_counts`]) and stores its output,
+//! so nothing is folded away.
 //! Both the N and the 2N run start from the same fresh state with both moves just started,
 //! so the per-tick figure is the mean of ticks N+1 ..= 2N: both profiles accelerating, no
 //! clamp or stall active (the common case of a running move).
 
-use ctrl_core::drive::DriveState;
+use core::hint::black_box;
+
+use ctrl_core::drive::{AxisState, DriveState};
+use ctrl_core::encoder::EncoderState;
 use ctrl_core::float;
 use ctrl_core::lead::LeadState;
+use ctrl_core::mix::mix;
 use ctrl_core::pd::PdState;
 use ctrl_core::profile::Profile;
+use ctrl_core::stall::StallState;
+use ctrl_core::supply::SupplyState;
 use fixed::types::{I16F16, I32F32};
 
 use crate::rover::*;
 use crate::{Bench, Path};
 
 /// Inputs that change every tick, standing in for sensor reads.
+#[derive(Clone)]
 pub struct Inputs {
     /// Raw left counter (advances like a wheel moving forward).
     left: u16,
@@ -26,6 +34,8 @@ pub struct Inputs {
     /// Tracking error fed to the single loops, counts (fixed and f32 copies).
     error: I16F16,
     error_f32: f32,
+    /// Ticks so far.
+    tick: u32,
 }
 
 impl Inputs {
@@ -35,6 +45,7 @@ impl Inputs {
             right: 2000,
             error: I16F16::from_bits(3 << 14),
             error_f32: 0.75,
+            tick: 0,
         }
     }
     /// Next error: a small ramp (0.75, 0.875, ... counts) that never clamps.
@@ -48,16 +59,21 @@ impl Inputs {
         self.error_f32 += 0.125;
         self.error_f32
     }
+    /// Encoder counters that roughly follow the start of both moves (the setpoints move
+    /// about 2 counts in the first 16 ticks): the left wheel steps +1 on ticks 3, 11, ...,
+    /// the mirrored right counter steps -1 (one count forward) on ticks 7, 15, ...; so the
+    /// tracking errors stay around a count and no clamp engages.
     #[inline(always)]
     fn next_counts(&mut self) -> (u16, u16) {
-        // 2 counts forward per tick on both wheels, rotating slightly (left 2, right -3).
-        self.left = self.left.wrapping_add(2);
-        self.right = self.right.wrapping_sub(3);
+        self.tick = self.tick.wrapping_add(1);
+        self.left = self.left.wrapping_add((self.tick & 7 == 3) as u16);
+        self.right = self.right.wrapping_sub((self.tick & 7 == 7) as u16);
         (self.left, self.right)
     }
 }
 
 /// State of every path.
+#[derive(Clone)]
 pub struct State {
     inputs: Inputs,
     pd: PdState,
@@ -68,6 +84,13 @@ pub struct State {
     profile_f32: ProfileF32,
     drive: DriveState,
     drive_f32: float::DriveState,
+    encoders: EncoderState,
+    stall: StallState,
+    supply: SupplyState,
+    axis_pd: AxisState,
+    axis_lead: AxisState,
+    /// Position the single-axis paths pretend to measure (follows the setpoint loosely).
+    measured: I32F32,
     /// Last outputs (stored every tick so the work is observable).
     out: [I16F16; 2],
     out_f32: [f32; 2],
@@ -76,7 +99,8 @@ pub struct State {
 }
 
 impl State {
-    /// Fresh state: loops at rest, both moves just started on every profile.
+    /// Fresh state: loops at rest, both moves just started on every profile. Planning a
+    /// move is slow on a Cortex-M0 (i128 arithmetic), so this is built once and cloned.
     pub fn fresh() -> Self {
         let mut s = State {
             inputs: Inputs::new(),
@@ -88,6 +112,12 @@ impl State {
             profile_f32: ProfileF32::new(),
             drive: DriveState::new(),
             drive_f32: float::DriveState::new(LOW_VOLTS as f32),
+            encoders: EncoderState::new(),
+            stall: StallState::new(),
+            supply: SupplyState::new(),
+            axis_pd: AxisState::new(),
+            axis_lead: AxisState::new(),
+            measured: I32F32::ZERO,
             out: [I16F16::ZERO; 2],
             out_f32: [0.0; 2],
             out_sp: I32F32::ZERO,
@@ -99,13 +129,20 @@ impl State {
             & s.drive.forward_mut().start(FWD_MOVE).is_ok()
             & s.drive.rotation_mut().start(ROT_MOVE).is_ok()
             & s.drive_f32.forward.profile.start(FWD_MOVE).is_ok()
-            & s.drive_f32.rotation.profile.start(ROT_MOVE).is_ok();
+            & s.drive_f32.rotation.profile.start(ROT_MOVE).is_ok()
+            & s.axis_pd.start(FWD_MOVE).is_ok()
+            & s.axis_lead.start(ROT_MOVE).is_ok();
         if !ok {
             crate::report_setup_error("a bench move was rejected by Profile::start");
         }
         s.profile_f32.start(1364.2, 2.18268, 0.0130961);
         DRIVE.set_battery(&mut s.drive, fx(BATTERY));
         s.drive_f32.supply.set_battery(BATTERY as f32);
+        SUPPLY.set_battery(&mut s.supply, fx(BATTERY));
+        // The encoder's first reading only latches the counters; do it here so the
+        // measured ticks are all ordinary ones (the drive paths latch on their tick 1).
+        let (l, r) = s.inputs.next_counts();
+        ENCODERS.update(&mut s.encoders, l, r);
         s
     }
 }
@@ -168,6 +205,67 @@ fn drive_f32(b: &mut Bench) {
     s.out_f32 = DRIVE_F32.tick(&mut s.drive_f32, l, r);
 }
 
+// --- components of the fixed-point tick, one at a time (the breakdown) ---
+
+#[inline(never)]
+fn encoders_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    let (l, r) = s.inputs.next_counts();
+    let d = ENCODERS.update(&mut s.encoders, l, r);
+    s.out = [d.forward(), d.rotation()];
+    s.out_sp = s.encoders.forward();
+}
+
+#[inline(never)]
+fn feedforward_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error();
+    // speed ~ 0.75.. counts/tick, accel = error / 64 ~ 0.012 counts/tick²
+    s.out[0] = FF_FWD.volts(e, I16F16::from_bits(e.to_bits() >> 6));
+}
+
+#[inline(never)]
+fn stall_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error();
+    s.out[0] = I16F16::from_bits(STALL.update(&mut s.stall, e) as i32);
+}
+
+#[inline(never)]
+fn mix_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error();
+    let v = mix(e, I16F16::from_bits(e.to_bits() >> 1), fx(MAX_VOLTS));
+    s.out = [v.left, v.right];
+}
+
+#[inline(never)]
+fn duty_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error();
+    s.out[0] = s.supply.duty(e);
+}
+
+#[inline(never)]
+fn axis_pd_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    s.measured = s.measured.wrapping_add(I32F32::from_bits(2 << 32));
+    s.out[0] = AXIS_FWD.update(&mut s.axis_pd, s.measured, I16F16::from_bits(2 << 16));
+}
+
+#[inline(never)]
+fn axis_lead_fixed(b: &mut Bench) {
+    let s = &mut b.p;
+    s.measured = s.measured.wrapping_add(I32F32::from_bits(1 << 32));
+    s.out[0] = AXIS_ROT.update(&mut s.axis_lead, s.measured, I16F16::from_bits(1 << 16));
+}
+
+/// Keeps a value observable (used by prototypes).
+#[allow(dead_code)]
+fn keep<T>(x: T) -> T {
+    black_box(x)
+}
+
 /// Measured paths, in run order.
 pub static PATHS: &[Path] = &[
     Path { name: "pd_fixed", tick: pd_fixed },
@@ -178,12 +276,20 @@ pub static PATHS: &[Path] = &[
     Path { name: "profile_f32", tick: profile_f32 },
     Path { name: "drive_fixed", tick: drive_fixed },
     Path { name: "drive_f32", tick: drive_f32 },
+    Path { name: "part_encoders", tick: encoders_fixed },
+    Path { name: "part_feedforward", tick: feedforward_fixed },
+    Path { name: "part_stall", tick: stall_fixed },
+    Path { name: "part_mix", tick: mix_fixed },
+    Path { name: "part_duty", tick: duty_fixed },
+    Path { name: "part_axis_pd", tick: axis_pd_fixed },
+    Path { name: "part_axis_lead", tick: axis_lead_fixed },
 ];
 
 /// The f32 baseline of [`Profile::step`]'s maths, kept in the bench because ctrl-core's
 /// `float` path shares the fixed-point profile. Same structure as the fixed-point plan:
 /// entry and exit speed envelopes advanced by the acceleration each tick, the cruise
 /// level clamped between them, position advanced by the mean of old and new speed.
+#[derive(Clone)]
 pub struct ProfileF32 {
     tick: u32,
     ticks: u32,

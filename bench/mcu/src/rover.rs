@@ -69,27 +69,20 @@ pub const PD: Pd = Pd::new(c(KP), c(KD), Derivative::OnError, fx(MAX_VOLTS));
 pub const LEAD: Lead = Lead::new(c(B0), c(B1), c(A1), fx(MAX_VOLTS));
 pub const STALL: StallGuard = StallGuard::new(fx(STALL_COUNTS), STALL_TICKS);
 
-pub static DRIVE: TwoAxisDrive = TwoAxisDrive::new(
-    Encoders::new(false, true),
-    Axis::new(
-        Feedforward::new(c(KV_F), c(KA_F), fx(BIAS_F)),
-        Feedback::Pd(PD),
-        STALL,
-    ),
-    Axis::new(
-        Feedforward::new(c(KV_R), c(KA_R), fx(BIAS_R)),
-        Feedback::Lead(LEAD),
-        STALL,
-    ),
-    Supply::new(fx(LOW_VOLTS)),
-    fx(MAX_VOLTS),
-);
+pub const ENCODERS: Encoders = Encoders::new(false, true);
+pub const FF_FWD: Feedforward = Feedforward::new(c(KV_F), c(KA_F), fx(BIAS_F));
+pub const FF_ROT: Feedforward = Feedforward::new(c(KV_R), c(KA_R), fx(BIAS_R));
+pub const AXIS_FWD: Axis = Axis::new(FF_FWD, Feedback::Pd(PD), STALL);
+pub const AXIS_ROT: Axis = Axis::new(FF_ROT, Feedback::Lead(LEAD), STALL);
+pub const SUPPLY: Supply = Supply::new(fx(LOW_VOLTS));
+
+pub static DRIVE: TwoAxisDrive = TwoAxisDrive::new(ENCODERS, AXIS_FWD, AXIS_ROT, SUPPLY, fx(MAX_VOLTS));
 
 pub const PD_F32: float::Pd = float::Pd::new(KP as f32, KD as f32, Derivative::OnError, MAX_VOLTS as f32);
 pub const LEAD_F32: float::Lead = float::Lead::new(B0 as f32, B1 as f32, A1 as f32, MAX_VOLTS as f32);
 
 pub static DRIVE_F32: float::TwoAxisDrive = float::TwoAxisDrive::new(
-    Encoders::new(false, true),
+    ENCODERS,
     float::Axis::new(
         float::Feedforward::new(KV_F as f32, KA_F as f32, BIAS_F as f32),
         float::Feedback::Pd(PD_F32),

@@ -48,7 +48,10 @@ const BUILDS: &[(&str, &[&str])] = &[
 ];
 
 /// Longest a QEMU run may take before it is killed.
-const QEMU_TIMEOUT: Duration = Duration::from_secs(600);
+const QEMU_TIMEOUT: Duration = Duration::from_secs(300);
+/// Largest execution log allowed (about 100 bytes per instruction); a firmware that runs
+/// away is stopped before it fills the disk.
+const LOG_LIMIT_BYTES: u64 = 2 << 30;
 
 struct Options {
     check: bool,
@@ -326,7 +329,19 @@ fn run_qemu(
                 let _ = child.wait();
                 return Err(format!("{}: qemu did not exit within {QEMU_TIMEOUT:?}", core.triple));
             }
-            Ok(None) => std::thread::sleep(Duration::from_millis(50)),
+            Ok(None) => {
+                let size = fs::metadata(&log).map(|m| m.len()).unwrap_or(0);
+                if size > LOG_LIMIT_BYTES {
+                    let _ = child.kill();
+                    let _ = child.wait();
+                    let _ = fs::remove_file(&log);
+                    return Err(format!(
+                        "{}: execution log passed {LOG_LIMIT_BYTES} bytes; firmware runs away (stopped)",
+                        core.triple
+                    ));
+                }
+                std::thread::sleep(Duration::from_millis(50))
+            }
             Err(e) => return Err(format!("waiting for qemu: {e}")),
         }
     };
