@@ -457,18 +457,19 @@ impl Profile {
             return Ok(());
         }
         let negative = distance < 0 || (distance == 0 && u < 0);
-        let sign = if negative { -1 } else { 1 };
+        let signed = |x: i128| if negative { -x } else { x };
         // Doubled end position: 2 target, or one off it when the parity of the interior
         // sum needs it, on the side that still rounds (toward zero) to the target.
         let parity = (self.pos2 + u + ve).rem_euclid(2);
         let half = match target.signum() {
-            0 => sign * parity,
-            s => s * parity,
+            0 => signed(parity),
+            s if s < 0 => -parity,
+            _ => parity,
         };
-        let q = sign * (2 * target + half - self.pos2);
-        let w0 = sign * u;
-        let m = (q - w0 - ve) / 2;
-        let found = solve(w0, ve, vc, a, m, q / 2)?;
+        let q = signed(2 * target + half - self.pos2);
+        let w0 = signed(u);
+        let m = (q - w0 - ve) >> 1; // even by the choice of `half`
+        let found = solve(w0, ve, vc, a, m, q >> 1)?;
         let n = i128::from(found.ticks);
         self.plan = Plan {
             negative,
@@ -477,8 +478,8 @@ impl Profile {
             accel: a,
             entry_up: w0,
             entry_down: w0,
-            exit_up: ve + n * a,
-            exit_down: ve - n * a,
+            exit_up: ve + mul(n, a),
+            exit_down: ve - mul(n, a),
             level: found.level,
             bump_from: found.bump_from,
             bump_to: found.bump_from + found.bump,
@@ -645,9 +646,24 @@ const fn sat_i64(x: i128) -> i64 {
     }
 }
 
-/// `floor(x / d)` for `d > 0` (callers guarantee it).
+/// `floor(x / d)` for `d > 0` (callers guarantee it; 0 otherwise, never a panic). The
+/// one place the planner divides, kept out of line so the `i128` division code exists once.
+#[inline(never)]
 fn floor_div(x: i128, d: i128) -> i128 {
     x.checked_div_euclid(d).unwrap_or(0)
+}
+
+/// `x y`, saturating (the planner's products provably fit; this is the safety net). Out of
+/// line for code size on cores without a 64-bit multiplier.
+#[inline(never)]
+fn mul(x: i128, y: i128) -> i128 {
+    x.saturating_mul(y)
+}
+
+/// `x y`, `None` on overflow; out of line like [`mul`].
+#[inline(never)]
+fn mul_checked(x: i128, y: i128) -> Option<i128> {
+    x.checked_mul(y)
 }
 
 /// `ceil(x / d)` for `d > 0`.
@@ -668,8 +684,8 @@ struct Shape {
 impl Shape {
     /// `w[k]` for level `c`.
     fn value(&self, k: i128, c: i128) -> i128 {
-        let ka = k * self.a;
-        let ra = (self.n - k) * self.a;
+        let ka = mul(k, self.a);
+        let ra = mul(self.n - k, self.a);
         let lower = (self.w0 - ka).max(self.ve - ra);
         let upper = (self.w0 + ka).min(self.ve + ra);
         c.max(lower).min(upper)
@@ -683,7 +699,7 @@ impl Shape {
             return 0;
         }
         let a = self.a;
-        let na = self.n * a;
+        let na = mul(self.n, a);
         let mut splits = [
             floor_div(self.w0 - c, a),
             floor_div(c - self.w0, a),
@@ -707,14 +723,14 @@ impl Shape {
     /// Sum of `w[k]` for `k` in `first..=last`, where it is affine in `k`.
     fn piece(&self, first: i128, last: i128, c: i128) -> i128 {
         // count * (w_first + w_last) is even for an integer arithmetic series.
-        (last - first + 1) * (self.value(first, c) + self.value(last, c)) / 2
+        mul(last - first + 1, self.value(first, c) + self.value(last, c)) >> 1
     }
 
     /// The interior ticks at the level: `{k : L[k] ≤ c < U[k]}` is `first..=last`
     /// (empty when `first > last`). Moving `c` by one LSB moves exactly these.
     fn at_level(&self, c: i128) -> (i128, i128) {
         let a = self.a;
-        let na = self.n * a;
+        let na = mul(self.n, a);
         let first = 1
             .max(ceil_div(self.w0 - c, a))
             .max(floor_div(c - self.w0, a) + 1);
@@ -730,10 +746,10 @@ impl Shape {
         if self.n < 2 {
             return None;
         }
-        let meet = floor_div(self.ve - self.w0 + self.n * self.a, 2 * self.a);
+        let meet = floor_div(self.ve - self.w0 + mul(self.n, self.a), 2 * self.a);
         let upper = |k: i128| {
-            let k = k.clamp(1, self.n - 1);
-            (self.w0 + k * self.a).min(self.ve + (self.n - k) * self.a)
+            let k = k.max(1).min(self.n - 1);
+            (self.w0 + mul(k, self.a)).min(self.ve + mul(self.n - k, self.a))
         };
         Some(upper(meet).max(upper(meet + 1)))
     }
@@ -744,10 +760,10 @@ impl Shape {
         if self.n < 2 {
             return None;
         }
-        let meet = floor_div(self.w0 - self.ve + self.n * self.a, 2 * self.a);
+        let meet = floor_div(self.w0 - self.ve + mul(self.n, self.a), 2 * self.a);
         let lower = |k: i128| {
-            let k = k.clamp(1, self.n - 1);
-            (self.w0 - k * self.a).max(self.ve - (self.n - k) * self.a)
+            let k = k.max(1).min(self.n - 1);
+            (self.w0 - mul(k, self.a)).max(self.ve - mul(self.n - k, self.a))
         };
         Some(lower(meet).min(lower(meet + 1)))
     }
@@ -775,7 +791,7 @@ fn first_fit(from: i128, hint: i128, fits: impl Fn(i128) -> bool) -> Result<i128
     if from > max {
         return Err(Error::OutOfRange);
     }
-    let guess = hint.clamp(from, max);
+    let guess = hint.max(from).min(max);
     // Bracket: `lo` does not fit (or is `from - 1`), `hi` fits.
     let (mut lo, mut hi) = if fits(guess) {
         let mut hi = guess;
@@ -812,7 +828,7 @@ fn first_fit(from: i128, hint: i128, fits: impl Fn(i128) -> bool) -> Result<i128
         }
     };
     while hi - lo > 1 {
-        let mid = lo + (hi - lo) / 2;
+        let mid = lo + ((hi - lo) >> 1);
         if fits(mid) {
             hi = mid;
         } else {
@@ -830,24 +846,24 @@ fn time_hint(w0: i128, ve: i128, vc: i128, a: i128, d: i128) -> Option<i128> {
     if w0 < 0 {
         // Moving away: brake to rest (`|w0|/a`, going `w0²/(2a)` further away), then the
         // whole way from rest.
-        let w2 = w0.checked_mul(w0)?;
-        let from_rest = time_hint(0, ve, vc, a, d.checked_add(w2 / (2 * a))?)?;
-        return from_rest.checked_add(-w0 / a);
+        let w2 = mul_checked(w0, w0)?;
+        let from_rest = time_hint(0, ve, vc, a, d.checked_add(floor_div(w2, 2 * a))?)?;
+        return from_rest.checked_add(floor_div(-w0, a));
     }
     if w0 > vc || d < 0 {
         return None;
     }
-    let vc2 = vc.checked_mul(vc)?;
-    let ramps = (vc2 - w0 * w0 + vc2 - ve * ve) / (2 * a);
+    let vc2 = mul_checked(vc, vc)?;
+    let ramps = floor_div(vc2 - mul(w0, w0) + vc2 - mul(ve, ve), 2 * a);
     if d >= ramps {
-        let num = ((vc - w0) * (vc - w0))
-            .checked_add((vc - ve) * (vc - ve))?
-            .checked_add(a.checked_mul(d)?.checked_mul(2)?)?;
-        num.checked_div(a.checked_mul(vc)?.checked_mul(2)?)
+        let num = mul(vc - w0, vc - w0)
+            .checked_add(mul(vc - ve, vc - ve))?
+            .checked_add(mul_checked(mul_checked(a, d)?, 2)?)?;
+        Some(floor_div(num, mul_checked(mul_checked(a, vc)?, 2)?))
     } else {
-        let sq = a.checked_mul(d)?.checked_add(w0 * w0 / 2 + ve * ve / 2)?;
+        let sq = mul_checked(a, d)?.checked_add((mul(w0, w0) >> 1) + (mul(ve, ve) >> 1))?;
         let vp = i128::try_from(u128::try_from(sq).ok()?.isqrt()).ok()?;
-        (2 * vp - w0 - ve).checked_div(a)
+        Some(floor_div(2 * vp - w0 - ve, a))
     }
 }
 
@@ -860,10 +876,10 @@ fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128, d: i128) -> Result<Solu
     // for a reversal.
     let back = || {
         (w0 >= 0)
-            .then(|| w0.checked_mul(w0))
+            .then(|| mul_checked(w0, w0))
             .flatten()
-            .and_then(|w2| time_hint(0, 0, vc, a, w2 / (2 * a) - d))
-            .map_or(0, |t| t + w0 / a)
+            .and_then(|w2| time_hint(0, 0, vc, a, floor_div(w2, 2 * a) - d))
+            .map_or(0, |t| t + floor_div(w0, a))
     };
     let reverse = |from| -> Result<(i128, i128), Error> {
         Ok((first_fit(from, back(), |n| shape(n).sum(-vc) <= m)?, -vc))
@@ -894,8 +910,8 @@ fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128, d: i128) -> Result<Solu
     // Largest level c in [floor, vc] with sum(c) <= m; sum(floor) <= m <= sum(vc).
     // Above the peak of U nothing changes (triangular moves), so search below it.
     // Likewise below the valley of L (a reversal that never reaches -vc).
-    let top = sh.peak().map_or(vc, |p| p.clamp(floor, vc));
-    let floor = sh.valley().map_or(floor, |v| v.clamp(floor, top));
+    let top = sh.peak().map_or(vc, |p| p.max(floor).min(vc));
+    let floor = sh.valley().map_or(floor, |v| v.max(floor).min(top));
     let (mut lo, mut hi) = (floor, top);
     // A reversal cruises back near `-vc`: there, start with Newton from below.
     let mut s_lo = (floor < 0).then(|| sh.sum(floor));
@@ -903,7 +919,7 @@ fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128, d: i128) -> Result<Solu
     let mut newton = true;
     while s_hi > m && hi - lo > 1 {
         let width = hi - lo;
-        let mut cand = lo + width / 2;
+        let mut cand = lo + (width >> 1);
         if newton {
             match s_lo {
                 // First step from the top (near the answer at the smallest K): the secant
@@ -921,13 +937,13 @@ fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128, d: i128) -> Result<Solu
                         break; // sum(lo + 1) = s + slope > m: lo is the answer
                     }
                     if slope > 0 {
-                        cand = lo + (m - s) / slope;
+                        cand = lo + floor_div(m - s, slope);
                     }
                 }
             }
         }
         if cand <= lo || cand >= hi {
-            cand = lo + width / 2;
+            cand = lo + (width >> 1);
         }
         let s = sh.sum(cand);
         if s <= m {
