@@ -23,8 +23,8 @@
 //! that changes by at most `a` per tick and starts at `w0` and ends at `ve` lies between
 //!
 //! ```text
-//! L[k] = max(w0 - k a, ve - (K-k) a)     (brake as late/early as possible)
-//! U[k] = min(w0 + k a, ve + (K-k) a)     (accelerate likewise)
+//! L[k] = max(w0 - k a, ve - (K-k) a)   (slowest: brake at once, speed up into ve last)
+//! U[k] = min(w0 + k a, ve + (K-k) a)   (fastest: speed up at once, brake into ve last)
 //! ```
 //!
 //! The profile is `w[k] = clamp(c, L[k], U[k])` for one integer "cruise level" `c`. Because
@@ -36,13 +36,16 @@
 //!
 //! `start` then
 //!
-//! 1. picks the smallest `K` for which `c = vc` covers the distance (an exponential then
-//!    binary search over `K`, with the interior sum `S_K(c) = Σ w[k]` in closed form: the
-//!    clamp is affine in `k` between at most six break points, so each piece is an
-//!    arithmetic series);
-//! 2. finds the largest `c ≤ vc` with `S_K(c) ≤ distance` (Newton steps on the piecewise
-//!    linear `S_K`, guarded by bisection);
-//! 3. puts the remainder `R = distance − S_K(c)` (fewer LSB than the number of ticks that
+//! 1. picks the smallest `K` for which `c = vc` covers the distance (a search over `K`
+//!    from the continuous closed-form time as first guess, stepping out and bisecting,
+//!    with the interior sum `S_K(c) = Σ w[k]` in closed form: the clamp is affine in `k`
+//!    between at most six break points, so each piece is an arithmetic series);
+//! 2. finds the largest `c ≤ vc` with `S_K(c) ≤ M`, where `M = distance − (w0 + ve)/2` is
+//!    what the interior ticks must cover (the trapezoid rule gives the two end speeds half
+//!    weight; the doubled target is moved by one if needed so that `M` is a whole number
+//!    of LSB, on the side that still rounds to the target), by Newton steps on the
+//!    piecewise linear `S_K`, guarded by bisection;
+//! 3. puts the remainder `R = M − S_K(c)` (fewer LSB than the number of ticks that
 //!    sit on the cruise level) as `+1 LSB` on the first `R` of those ticks. They are at
 //!    `c + 1 ≤ vc`, and moving a cruise tick by one LSB keeps every speed change within `a`
 //!    (it is one LSB against another cruise tick, and towards a ramp tick it closes a gap
@@ -95,10 +98,15 @@
 //!
 //! # Cost
 //!
-//! `step` is a few `i128` additions and comparisons. `start` evaluates the closed-form sum
-//! about `2 log2(K) + 10` times, each with six `i128` divisions; on a core without a
-//! divider (thumbv6m) call it from the main loop rather than from the tick interrupt if the
-//! tick budget is tight.
+//! `step` is a few `i128` additions and comparisons (on thumbv6m: about 1.6 KB of code and
+//! no calls at all, so no division and no multiplication). `start` evaluates the closed-form
+//! sum a handful of times, each with six `i128` divisions: about 6 times for a move whose
+//! first guess of `K` (the closed-form time) is right, as for the demo moves, and up to
+//! about 30 for short triangular moves and for retargets that must reverse. The first guess
+//! only saves work; the search gives the same `K` from any guess. On a core without a
+//! divider (thumbv6m) each division is a software routine, so call `start` from the main
+//! loop rather than from the tick interrupt if the tick budget is tight. The planner has
+//! no panic paths (its divisions and products go through checked helpers).
 
 use fixed::types::I32F32;
 
