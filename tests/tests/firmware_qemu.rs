@@ -1,0 +1,162 @@
+//! The demo firmware, built for thumbv7m-none-eabi from the demo design, runs its route on
+//! the emulated LM3S6965 (qemu-system-arm, semihosting) and its reported results agree with
+//! the host simulation of the same design.
+//!
+//! Without `qemu-system-arm` the test says so and passes, unless `CTRL_REQUIRE_QEMU=1`
+//! (CI sets it), which turns the skip into a failure.
+//!
+//! Tolerance (stated here, checked below), per free move, firmware against host:
+//! - final tracking error within [`FINAL_ERROR_TOL_COUNTS`] counts. Both rest inside the
+//!   friction dead band, where the loop's force is below the bias; the on-target drive
+//!   reads two wheel encoders (axis position in half counts) where the host reads the
+//!   axis in whole counts, and steps the plant in fixed point, so where in the band each
+//!   stops can differ by up to a count (measured on the demo: at most 0.61 count).
+//! - peak wheel duty within [`PEAK_DUTY_TOL`] (absolute): the peak is the feedforward's
+//!   at the end of the acceleration plus a little feedback, the same in both (measured on
+//!   the demo: at most 0.016).
+
+use std::time::Duration;
+
+use ctrl_design::design_file::Axis;
+use ctrl_design::emit::{emit, AxisReport, Emission, Gains};
+use ctrl_design::sim;
+use ctrl_tests::{
+    build_firmware, firmware_elf, firmware_target_dir, parse_moves, qemu_available, rover_dir,
+    run_qemu, MoveReport,
+};
+
+/// Largest |firmware - host| final tracking error, counts.
+const FINAL_ERROR_TOL_COUNTS: f64 = 1.0;
+/// Largest |firmware - host| peak wheel duty.
+const PEAK_DUTY_TOL: f64 = 0.03;
+/// The simulated robot's battery in the firmware (`BATTERY_VOLTS` in src/main.rs), V.
+const BATTERY_VOLTS: f64 = 7.4;
+
+/// Host simulation of one route leg: `ctrl-core`'s drive through the simulation's firmware
+/// loop, against the exact `f64` drive model, for as many ticks as the firmware ran.
+fn host_move(e: &Emission, r: &AxisReport, distance: f64, ticks: u32) -> sim::Metrics {
+    let (kp, kd) = match r.gains {
+        Gains::Pd { kp, kd, .. } => (kp, kd),
+        Gains::Lead { .. } => panic!("the demo uses PD loops"),
+    };
+    let ad = e.design.axis(r.axis);
+    let rate = e.design.drive.loop_rate_hz;
+    let units = sim::FirmwareUnits {
+        count_size: 1.0 / r.counts_per_unit,
+        rate_hz: rate,
+    };
+    let design = sim::LoopDesign {
+        kp,
+        kd,
+        derivative: sim::DerivativeForm::OnError,
+        feedforward: Some(sim::Feedforward::for_plant(&r.plant)),
+    };
+    let q = sim::quantize_axis(&design, &units, e.design.supply.highest_volts, 1e-3).unwrap();
+    let command = sim::Command::Move {
+        distance,
+        cruise_speed: ad.moves.cruise_speed,
+        accel: ad.moves.accel,
+    };
+    let kind = match r.axis {
+        Axis::Forward => sim::AxisKind::Forward,
+        Axis::Rotation => sim::AxisKind::Rotation,
+    };
+    let mut lp = sim::FirmwareLoop::new(&q, kind, &units, BATTERY_VOLTS, &command).unwrap();
+    let cfg = sim::SimConfig {
+        plant: r.plant,
+        rate_hz: rate,
+        count_size: Some(units.count_size),
+        supply_volts: BATTERY_VOLTS,
+        // The firmware applies each tick's duty right after computing it.
+        delay_ticks: 0,
+        disturbance: None,
+        command,
+        ticks,
+        band: 0.02,
+    };
+    cfg.check().unwrap();
+    sim::simulate(&cfg, &mut lp)
+}
+
+#[test]
+fn firmware_route_under_qemu_matches_the_host_simulation() {
+    if !qemu_available() {
+        let required = std::env::var("CTRL_REQUIRE_QEMU").is_ok_and(|v| v == "1");
+        assert!(
+            !required,
+            "qemu-system-arm is not installed, and CTRL_REQUIRE_QEMU=1 says it must be"
+        );
+        eprintln!(
+            "skip: qemu-system-arm is not installed (set CTRL_REQUIRE_QEMU=1 to fail instead)"
+        );
+        return;
+    }
+    let target = firmware_target_dir("qemu");
+    let out = build_firmware(None, &target);
+    assert!(
+        out.status.success(),
+        "the demo firmware does not build:\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let run = run_qemu(&firmware_elf(&target), Duration::from_secs(120));
+    println!("{}", run.stdout);
+    assert_eq!(
+        run.code,
+        Some(0),
+        "the firmware reported a failure:\n{}\n{}",
+        run.stdout,
+        run.stderr
+    );
+    assert!(run.stdout.contains("ROUTE ok=1"), "{}", run.stdout);
+    let moves = parse_moves(&run.stdout);
+    assert_eq!(moves.len(), 7, "{}", run.stdout);
+
+    let e = emit(&rover_dir().join("rover.toml")).unwrap_or_else(|f| panic!("{f}"));
+    let mut compared = 0;
+    for m in &moves {
+        assert_eq!(m.get("ok"), Some("1"), "{m:?}");
+        if m.get("expect_stall") == Some("1") {
+            assert_eq!(
+                m.get("stalled"),
+                Some("1"),
+                "the blocked move must trip the guard"
+            );
+            continue;
+        }
+        assert_eq!(m.get("stalled"), Some("0"), "{m:?}");
+        let (r, distance) = leg(&e, m);
+        let host = host_move(&e, r, distance, m.num("ticks") as u32);
+        let host_counts = host.final_error * r.counts_per_unit;
+        let fw_counts = m.num("final_error_counts");
+        println!(
+            "move {}: final error firmware {fw_counts:.3} counts, host {host_counts:.3}; peak duty firmware {:.3}, host {:.3}",
+            m.index,
+            m.num("peak_duty"),
+            host.peak_volts / BATTERY_VOLTS
+        );
+        assert!(
+            (fw_counts - host_counts).abs() <= FINAL_ERROR_TOL_COUNTS,
+            "move {}: final error {fw_counts} counts on the target, {host_counts} on the host",
+            m.index
+        );
+        let host_duty = host.peak_volts / BATTERY_VOLTS;
+        assert!(
+            (m.num("peak_duty") - host_duty).abs() <= PEAK_DUTY_TOL,
+            "move {}: peak duty {} on the target, {host_duty} on the host",
+            m.index,
+            m.num("peak_duty")
+        );
+        compared += 1;
+    }
+    assert_eq!(compared, 6);
+}
+
+/// The axis report and the distance (axis unit) of a move line.
+fn leg<'a>(e: &'a Emission, m: &MoveReport) -> (&'a AxisReport, f64) {
+    let d = m.num("distance");
+    match (m.get("axis"), m.get("unit")) {
+        (Some("forward"), Some("mm")) => (&e.axes[0], d),
+        (Some("rotation"), Some("mrad")) => (&e.axes[1], d / 1000.0),
+        other => panic!("unexpected axis/unit {other:?}"),
+    }
+}
