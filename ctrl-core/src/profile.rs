@@ -559,7 +559,7 @@ impl Profile {
     /// assert_eq!(p.setpoint().speed, I32F32::ZERO);
     /// assert!(p.is_done());
     /// ```
-    pub fn hold(&mut self) {
+    pub const fn hold(&mut self) {
         self.mode = Mode::Coast;
         self.speed = 0;
         self.accel = 0;
@@ -581,7 +581,7 @@ impl Profile {
     /// assert_eq!(speeds, [0.75, 0.5, 0.25, 0.0]);
     /// assert!(p.is_done());
     /// ```
-    pub fn stop(&mut self) {
+    pub const fn stop(&mut self) {
         if self.speed == 0 || self.brake_accel <= 0 {
             self.hold();
         } else {
