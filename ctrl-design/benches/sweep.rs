@@ -5,7 +5,8 @@
 
 use criterion::{criterion_main, Criterion, Throughput};
 use ctrl_design::sim::{
-    Command, DerivativeForm, Feedforward, IdealLoop, LoopDesign, SimConfig,
+    AxisKind, Command, DerivativeForm, Feedforward, FirmwareLoop, FirmwareUnits, IdealLoop,
+    LoopDesign, SimConfig,
 };
 use ctrl_design::sweep::{plants, sweep, Sampling, Spread};
 use ctrl_design::Plant;
@@ -62,6 +63,16 @@ fn bench(c: &mut Criterion) {
                 &ProgressBar::hidden(),
             )
         })
+    });
+    let units = FirmwareUnits {
+        count_size: 0.36652,
+        rate_hz: 500.0,
+    };
+    let (proto, _) =
+        FirmwareLoop::from_design(&design, AxisKind::Forward, &units, 6.4, &config.command)
+            .expect("the demo design holds in fixed point");
+    g.bench_function("fixed", |b| {
+        b.iter(|| sweep(&config, &runs, || proto.clone(), &ProgressBar::hidden()))
     });
     g.finish();
 }

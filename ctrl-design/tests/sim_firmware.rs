@@ -11,10 +11,18 @@
 //! `reference/sim/linear_reference.py` (committed output). `max|dv|` is summed from the error
 //! bounds `ctrl-core` documents for each operation (listed in `voltage_error_bound`).
 
+use ctrl_core::drive::{Axis, DriveState, Feedback, TwoAxisDrive};
+use ctrl_core::encoder::Encoders;
+use ctrl_core::pd::{Derivative, Pd};
+use ctrl_core::stall::StallGuard;
+use ctrl_core::supply::Supply;
+use ctrl_core::Coeff;
 use ctrl_design::sim::{
-    quantize_axis, simulate, simulate_traced, AxisKind, Command, DerivativeForm, Feedforward,
-    FirmwareLoop, FirmwareUnits, IdealLoop, LoopDesign, SimConfig, MAX_RELATIVE_ERROR,
+    quantize_axis, quantize_move, simulate, simulate_traced, AxisKind, Command, DerivativeForm,
+    Feedforward, FirmwareLoop, FirmwareUnits, IdealLoop, LoopDesign, SimConfig,
+    MAX_RELATIVE_ERROR,
 };
+use fixed::types::I16F16;
 use ctrl_design::Plant;
 use proptest::prelude::*;
 use serde_json::Value;
@@ -144,6 +152,59 @@ fn fixed_point_loop_stays_within_the_quantization_bound() {
         // The bound is tight enough to matter: far below one count of the demo's encoder, and
         // far below what a slip of one tick or of a unit conversion would cause.
         assert!(bound < 0.05, "bound {bound} mm is too loose to test anything");
+    }
+}
+
+// The simulation steps one axis with ctrl-core's pieces in TwoAxisDrive::tick's order and
+// skips the axis at rest; the duties must be those of the whole TwoAxisDrive, bit for bit,
+// including across the 16-bit encoder wrap.
+#[test]
+fn single_axis_path_equals_the_two_axis_drive_bit_for_bit() {
+    let plant = rover(0.7);
+    let d = design(&plant);
+    let units = FirmwareUnits {
+        count_size: 0.01,
+        rate_hz: 500.0,
+    };
+    let (distance, cruise, accel) = (400.0, 400.0, 1200.0);
+    let command = Command::Move {
+        distance,
+        cruise_speed: cruise,
+        accel,
+    };
+    let q = quantize_axis(&d, &units, 6.4, MAX_RELATIVE_ERROR).unwrap();
+    let battery = I16F16::checked_from_num(6.4).unwrap();
+    for kind in [AxisKind::Forward, AxisKind::Rotation] {
+        let mut lp = FirmwareLoop::new(&q, kind, &units, 6.4, &command).unwrap();
+        let quiet = Axis::new(
+            ctrl_core::feedforward::Feedforward::NONE,
+            Feedback::Pd(Pd::new(Coeff::ZERO, Coeff::ZERO, Derivative::OnError, I16F16::ZERO)),
+            StallGuard::OFF,
+        );
+        let active = q.axis(StallGuard::OFF);
+        let (f, r) = match kind {
+            AxisKind::Forward => (active, quiet),
+            AxisKind::Rotation => (quiet, active),
+        };
+        let drive = TwoAxisDrive::new(Encoders::new(false, false), f, r, Supply::new(I16F16::ZERO), battery);
+        let mut st = DriveState::new();
+        drive.set_battery(&mut st, battery);
+        let mv = quantize_move(distance, cruise, accel, &units).unwrap();
+        match kind {
+            AxisKind::Forward => st.forward_mut().start(mv).unwrap(),
+            AxisKind::Rotation => st.rotation_mut().start(mv).unwrap(),
+        }
+        let target = distance / units.count_size; // 40000 counts: the u16 counter wraps
+        for k in 0..1200i64 {
+            let s = (k as f64 / 700.0).min(1.0);
+            let counts = (target * s * s * (3.0 - 2.0 * s)) as i64 + (k * 7919 % 11) - 5;
+            let raw = counts as u16;
+            let (l, r) = match kind {
+                AxisKind::Forward => (raw, raw),
+                AxisKind::Rotation => (raw.wrapping_neg(), raw),
+            };
+            assert_eq!(lp.read(counts), drive.tick(&mut st, l, r), "{kind:?} tick {k}");
+        }
     }
 }
 

@@ -2,10 +2,13 @@
 //! and an optional SVG plot.
 
 use super::{CliError, Format};
+use ctrl_design::analysis::SettlingBand;
 use ctrl_design::sim::{
-    self, Command, DerivativeForm, Disturbance, Feedforward, IdealLoop, LoopDesign, Metrics,
-    SimConfig, SimError,
+    self, AxisKind, Command, DerivativeForm, Disturbance, Feedforward, FirmwareLoop,
+    FirmwareUnits, IdealLoop, LoopDesign, Metrics, QuantizationReport, SimConfig, SimError,
+    Trace,
 };
+use ctrl_design::tune;
 use ctrl_design::Plant;
 use std::path::PathBuf;
 
@@ -30,6 +33,15 @@ pub enum DerivativeArg {
     OnMeasurement,
 }
 
+/// Which axis of the two-wheel drive is simulated.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum AxisArg {
+    /// Both wheels together (forward = (L + R) / 2).
+    Forward,
+    /// The wheels opposite (rotation = (R - L) / 2).
+    Rotation,
+}
+
 /// Plant, loop and command flags shared by `simulate` and `sweep`.
 #[derive(Debug, Clone, clap::Args)]
 pub struct SimArgs {
@@ -42,12 +54,22 @@ pub struct SimArgs {
     /// Friction bias, V (>= 0).
     #[arg(long, allow_negative_numbers = true, value_name = "VOLTS", default_value_t = 0.0)]
     pub bias: f64,
-    /// Proportional gain, V per unit of position error (> 0).
-    #[arg(long, allow_negative_numbers = true)]
-    pub kp: f64,
+    /// Proportional gain, V per unit of position error (> 0); with --kd, instead of
+    /// --damping/--settling-time.
+    #[arg(long, allow_negative_numbers = true, requires = "kd", conflicts_with_all = ["damping", "settling_time"])]
+    pub kp: Option<f64>,
     /// Derivative gain, V per unit/s (>= 0).
-    #[arg(long, allow_negative_numbers = true)]
-    pub kd: f64,
+    #[arg(long, allow_negative_numbers = true, requires = "kp")]
+    pub kd: Option<f64>,
+    /// Damping ratio for a PD designed by pole placement (with --settling-time).
+    #[arg(long, allow_negative_numbers = true, requires = "settling_time")]
+    pub damping: Option<f64>,
+    /// Settling time for the pole-placement design, s (to the --band).
+    #[arg(long, value_name = "S", allow_negative_numbers = true, requires = "damping")]
+    pub settling_time: Option<f64>,
+    /// Axis of the two-wheel drive the firmware loop runs on.
+    #[arg(long, value_enum, default_value = "forward")]
+    pub axis: AxisArg,
     /// What the derivative term differentiates.
     #[arg(long, value_enum, default_value = "on-error")]
     pub derivative: DerivativeArg,
@@ -124,6 +146,44 @@ pub struct Setup {
     pub config: SimConfig,
     /// The loop, designed for `config.plant`.
     pub design: LoopDesign,
+    /// The axis the firmware loop runs on.
+    pub axis: AxisKind,
+}
+
+impl Setup {
+    /// Encoder and rate scale for the fixed-point loop; refuses a run without a count size.
+    pub fn units(&self) -> Result<FirmwareUnits, CliError> {
+        match self.config.count_size {
+            Some(count_size) => Ok(FirmwareUnits {
+                count_size,
+                rate_hz: self.config.rate_hz,
+            }),
+            None => Err(CliError::bad_input(
+                "--arithmetic fixed needs the encoder: give --count-size or --counts-per-unit \
+                 (finite and > 0), or use --arithmetic f64",
+            )),
+        }
+    }
+
+    /// The supply for the fixed-point loop; refuses a run without one.
+    pub fn supply(&self) -> Result<f64, CliError> {
+        if self.config.supply_volts.is_finite() {
+            Ok(self.config.supply_volts)
+        } else {
+            Err(CliError::bad_input(
+                "--arithmetic fixed needs --supply (volts, finite and > 0): the firmware \
+                 compensates for it, or use --arithmetic f64",
+            ))
+        }
+    }
+
+    /// The fixed-point loop and its quantization report.
+    pub fn firmware_loop(&self) -> Result<(FirmwareLoop, QuantizationReport), CliError> {
+        let units = self.units()?;
+        let supply = self.supply()?;
+        FirmwareLoop::from_design(&self.design, self.axis, &units, supply, &self.config.command)
+            .map_err(|e| CliError::bad_input(format!("the design cannot run in fixed point: {e}")))
+    }
 }
 
 /// The flag that sets a [`SimConfig`] field, for error messages.
@@ -169,11 +229,28 @@ impl SimArgs {
             .map_err(|ctrl_design::PlantError::OutOfRange { field, value, valid }| {
                 bad(flag_of(field), value, valid)
             })?;
-        if !(self.kp.is_finite() && self.kp > 0.0) {
-            return Err(bad("--kp", self.kp, "finite and > 0 (V per unit)"));
+        let (kp, kd) = match (self.kp, self.kd, self.damping, self.settling_time) {
+            (Some(kp), Some(kd), _, _) => (kp, kd),
+            (_, _, Some(zeta), Some(ts)) => {
+                let band = SettlingBand::percent(self.band).ok_or_else(|| {
+                    bad("--band", self.band, "0 < band < 50 (percent) for a pole-placement design")
+                })?;
+                let pd = tune::design_pd(&plant, zeta, ts, band).map_err(|e| {
+                    CliError::bad_input(format!("pole placement refused: {e}"))
+                })?;
+                (pd.kp, pd.kd)
+            }
+            _ => {
+                return Err(CliError::bad_input(
+                    "give the loop: --kp and --kd, or --damping and --settling-time",
+                ))
+            }
+        };
+        if !(kp.is_finite() && kp > 0.0) {
+            return Err(bad("--kp", kp, "finite and > 0 (V per unit)"));
         }
-        if !(self.kd.is_finite() && self.kd >= 0.0) {
-            return Err(bad("--kd", self.kd, "finite and >= 0 (V per unit/s)"));
+        if !(kd.is_finite() && kd >= 0.0) {
+            return Err(bad("--kd", kd, "finite and >= 0 (V per unit/s)"));
         }
         let count_size = match (self.counts_per_unit, self.count_size) {
             (Some(n), _) => {
@@ -240,15 +317,23 @@ impl SimArgs {
         }
         config.ticks = ticks as u32;
         let design = LoopDesign {
-            kp: self.kp,
-            kd: self.kd,
+            kp,
+            kd,
             derivative: match self.derivative {
                 DerivativeArg::OnError => DerivativeForm::OnError,
                 DerivativeArg::OnMeasurement => DerivativeForm::OnMeasurement,
             },
             feedforward: (!self.no_feedforward).then(|| Feedforward::for_plant(&plant)),
         };
-        Ok(Setup { config, design })
+        let axis = match self.axis {
+            AxisArg::Forward => AxisKind::Forward,
+            AxisArg::Rotation => AxisKind::Rotation,
+        };
+        Ok(Setup {
+            config,
+            design,
+            axis,
+        })
     }
 }
 
@@ -265,6 +350,8 @@ struct Report<'a> {
     design: &'a LoopDesign,
     kd_per_tick: f64,
     duration_s: f64,
+    /// Firmware constants' quantization (fixed arithmetic only).
+    quantization: Option<QuantizationReport>,
     runs: Vec<Run>,
 }
 
@@ -302,6 +389,19 @@ fn print_text(r: &Report<'_>) {
         },
         c.delay_ticks
     );
+    if let Some(q) = &r.quantization {
+        println!("firmware constants (counts, ticks): held value, relative error");
+        for (name, c) in [
+            ("kp", q.kp),
+            ("kd_per_tick", q.kd_per_tick),
+            ("kv", q.kv),
+            ("ka", q.ka),
+            ("bias_volts", q.bias_volts),
+            ("limit_volts", q.limit_volts),
+        ] {
+            println!("  {name:<12} {:<14.8e} {:.2e}", c.held, c.relative_error);
+        }
+    }
     for run in &r.runs {
         let m = &run.metrics;
         println!("\n[{}]", run.arithmetic);
@@ -320,29 +420,45 @@ fn print_text(r: &Report<'_>) {
 
 /// Runs the subcommand.
 pub fn run(args: Args) -> Result<(), CliError> {
-    let Setup { config, design } = args.sim.setup()?;
+    let setup = args.sim.setup()?;
+    let Setup { config, design, .. } = setup;
     let wants = |a: Arithmetic| args.arithmetic == a || args.arithmetic == Arithmetic::Both;
     let mut runs = Vec::new();
-    let mut trace = None;
-    if wants(Arithmetic::Fixed) {
-        return Err(CliError::failure(
-            "--arithmetic fixed is not available yet (ctrl-core loop pending); use --arithmetic f64",
-        ));
-    }
-    if wants(Arithmetic::F64) {
-        let mut ctrl = IdealLoop::new(&design, &config.command, config.rate_hz);
-        let (m, t) = if args.plot.is_some() && trace.is_none() {
-            let (m, t) = sim::simulate_traced(&config, &mut ctrl);
-            (m, Some(t))
-        } else {
-            (sim::simulate(&config, &mut ctrl), None)
-        };
-        if t.is_some() {
+    let mut trace: Option<Trace> = None;
+    let mut quantization = None;
+    let mut go = |name: &'static str, ctrl: &mut dyn FnMut(bool) -> (Metrics, Option<Trace>)| {
+        let (m, t) = ctrl(args.plot.is_some() && trace.is_none());
+        if trace.is_none() {
             trace = t;
         }
         runs.push(Run {
-            arithmetic: "f64",
+            arithmetic: name,
             metrics: m,
+        });
+    };
+    if wants(Arithmetic::Fixed) {
+        let (lp, report) = setup.firmware_loop()?;
+        quantization = Some(report);
+        let mut lp = Some(lp);
+        go("fixed", &mut |traced| {
+            let mut l = lp.take().expect("run once");
+            if traced {
+                let (m, t) = sim::simulate_traced(&config, &mut l);
+                (m, Some(t))
+            } else {
+                (sim::simulate(&config, &mut l), None)
+            }
+        });
+    }
+    if wants(Arithmetic::F64) {
+        go("f64", &mut |traced| {
+            let mut l = IdealLoop::new(&design, &config.command, config.rate_hz);
+            if traced {
+                let (m, t) = sim::simulate_traced(&config, &mut l);
+                (m, Some(t))
+            } else {
+                (sim::simulate(&config, &mut l), None)
+            }
         });
     }
     if let (Some(path), Some(t)) = (&args.plot, &trace) {
@@ -365,6 +481,7 @@ pub fn run(args: Args) -> Result<(), CliError> {
         design: &design,
         kd_per_tick: design.kd * config.rate_hz,
         duration_s: f64::from(config.ticks) / config.rate_hz,
+        quantization,
         runs,
     };
     match args.format {

@@ -21,13 +21,14 @@
 //! caller's bound and reports every constant's error.
 
 use super::{Command, Controller, DerivativeForm, LoopDesign, LoopOutput, Measurement, Setpoint};
-use ctrl_core::drive::{Axis, DriveState, Feedback, TwoAxisDrive};
-use ctrl_core::encoder::Encoders;
+use ctrl_core::drive::{Axis, AxisState, Feedback};
+use ctrl_core::encoder::{EncoderState, Encoders};
+use ctrl_core::mix::mix;
 use ctrl_core::feedforward::Feedforward as CoreFeedforward;
 use ctrl_core::pd::{Derivative, Pd};
 use ctrl_core::profile::Move;
 use ctrl_core::stall::StallGuard;
-use ctrl_core::supply::Supply;
+use ctrl_core::supply::{Supply, SupplyState};
 use ctrl_core::Coeff;
 use fixed::types::{I16F16, I32F32};
 use std::fmt;
@@ -280,19 +281,30 @@ pub enum AxisKind {
     Rotation,
 }
 
-/// A `ctrl-core` two-wheel drive running one axis (the other axis at rest), stepped with
-/// the encoder counts of the simulated drive; the applied voltage is the axis' share of the
+/// One axis of `ctrl-core`'s two-wheel drive, stepped with the encoder counts of the
+/// simulated drive (the other axis at rest); the applied voltage is the axis' share of the
 /// two wheel duties times the supply.
 ///
-/// The whole firmware tick runs: 16-bit encoder wrap, profile, feedforward, PD, wheel mix
-/// with its limit, supply compensation through the stored reciprocal, stall guard (off).
+/// Each tick runs the firmware's own pieces in the order of
+/// `ctrl_core::drive::TwoAxisDrive::tick`: the 16-bit encoder update (with its wrap), the
+/// axis update (profile step, feedforward, PD, stall guard, here off), the wheel mix with the
+/// limit `min(battery, max volts)`, and supply compensation through the stored reciprocal.
+/// The axis at rest contributes exactly 0 V there, so it is not stepped; a test checks that
+/// the duties equal `TwoAxisDrive::tick`'s bit for bit.
 ///
 /// A step command is made the way firmware would see a sudden new target: the encoder's
 /// reference reading is taken `distance` counts (rounded to whole counts) away, so the
 /// profile at rest holds the target. So a step must be shorter than 32768 counts.
+///
+/// A loop is cheap to clone: a sweep builds one and clones it for every run.
+#[derive(Debug, Clone)]
 pub struct FirmwareLoop {
-    drive: TwoAxisDrive,
-    state: DriveState,
+    encoders: Encoders,
+    encoder_state: EncoderState,
+    axis: Axis,
+    state: AxisState,
+    supply: SupplyState,
+    limit_volts: I16F16,
     kind: AxisKind,
     count_size: f64,
     rate_hz: f64,
@@ -302,8 +314,8 @@ pub struct FirmwareLoop {
 }
 
 impl FirmwareLoop {
-    /// A loop at rest, with `axis` on `kind` and a quiet other axis, running `command`,
-    /// fed from a supply of `supply_volts` (> 0, finite).
+    /// A loop at rest running `command` with `axis` on `kind`, fed from a supply of
+    /// `supply_volts` (finite, > 0), which is also the drive's largest voltage.
     pub fn new(
         axis: &QuantizedAxis,
         kind: AxisKind,
@@ -320,33 +332,16 @@ impl FirmwareLoop {
                 valid: "finite and > 0 (volts)".to_string(),
             });
         }
-        let active = axis.axis(StallGuard::OFF);
-        let quiet = Axis::new(
-            CoreFeedforward::NONE,
-            Feedback::Pd(Pd::new(
-                Coeff::ZERO,
-                Coeff::ZERO,
-                Derivative::OnError,
-                I16F16::ZERO,
-            )),
-            StallGuard::OFF,
-        );
-        let (fwd, rot) = match kind {
-            AxisKind::Forward => (active, quiet),
-            AxisKind::Rotation => (quiet, active),
-        };
-        let drive = TwoAxisDrive::new(
-            Encoders::new(false, false),
-            fwd,
-            rot,
-            Supply::new(I16F16::ZERO),
-            battery,
-        );
-        let mut state = DriveState::new();
-        drive.set_battery(&mut state, battery);
+        let mut supply = SupplyState::new();
+        Supply::new(I16F16::ZERO).set_battery(&mut supply, battery);
         let mut lp = FirmwareLoop {
-            drive,
-            state,
+            encoders: Encoders::new(false, false),
+            encoder_state: EncoderState::new(),
+            axis: axis.axis(StallGuard::OFF),
+            state: AxisState::new(),
+            supply,
+            // TwoAxisDrive limits the mix to min(battery, max volts); both are the supply.
+            limit_volts: battery,
             kind,
             count_size: units.count_size,
             rate_hz: units.rate_hz,
@@ -373,11 +368,7 @@ impl FirmwareLoop {
                 accel,
             } => {
                 let mv = quantize_move(distance, cruise_speed, accel, units)?;
-                let st = match kind {
-                    AxisKind::Forward => lp.state.forward_mut(),
-                    AxisKind::Rotation => lp.state.rotation_mut(),
-                };
-                st.start(mv).map_err(|e| QuantizeError {
+                lp.state.start(mv).map_err(|e| QuantizeError {
                     constant: "move",
                     value: distance,
                     valid: format!("a move the profile accepts ({e})"),
@@ -385,6 +376,45 @@ impl FirmwareLoop {
             }
         }
         Ok(lp)
+    }
+
+    /// The axis' constants (as built by [`QuantizedAxis::axis`] with the stall guard off).
+    pub fn axis(&self) -> &Axis {
+        &self.axis
+    }
+
+    /// One firmware tick with the encoders at `counts` (axis position); returns the wheel
+    /// duties `[left, right]`.
+    #[inline]
+    pub fn read(&mut self, counts: i64) -> [I16F16; 2] {
+        let raw = counts as u16; // the hardware counter keeps the low 16 bits
+        let (l, r) = match self.kind {
+            AxisKind::Forward => (raw, raw),
+            AxisKind::Rotation => (raw.wrapping_neg(), raw),
+        };
+        let d = self.encoders.update(&mut self.encoder_state, l, r);
+        match self.kind {
+            AxisKind::Forward => {
+                let v = self.axis.update(
+                    &mut self.state,
+                    self.encoder_state.forward(),
+                    d.forward(),
+                );
+                let w = mix(v, I16F16::ZERO, self.limit_volts);
+                // left == right here, so one duty serves both wheels.
+                let duty = self.supply.duty(w.left);
+                [duty, duty]
+            }
+            AxisKind::Rotation => {
+                let v = self.axis.update(
+                    &mut self.state,
+                    self.encoder_state.rotation(),
+                    d.rotation(),
+                );
+                let w = mix(I16F16::ZERO, v, self.limit_volts);
+                [self.supply.duty(w.left), self.supply.duty(w.right)]
+            }
+        }
     }
 
     /// [`quantize_axis`] with [`MAX_RELATIVE_ERROR`] and the supply as the PD limit, then
@@ -402,38 +432,20 @@ impl FirmwareLoop {
             q.report,
         ))
     }
-
-    /// One firmware tick with the encoders at `counts` (axis position); returns the duties.
-    #[inline]
-    fn read(&mut self, counts: i64) -> [I16F16; 2] {
-        let raw = counts as u16; // the hardware counter keeps the low 16 bits
-        let (l, r) = match self.kind {
-            AxisKind::Forward => (raw, raw),
-            AxisKind::Rotation => (raw.wrapping_neg(), raw),
-        };
-        self.drive.tick(&mut self.state, l, r)
-    }
 }
 
 impl Controller for FirmwareLoop {
     #[inline]
     fn tick(&mut self, m: &Measurement) -> LoopOutput {
         let duty = self.read(m.counts);
-        let sample = self.state.sample();
-        let (axis, share) = match self.kind {
-            AxisKind::Forward => (sample.forward, duty[0].to_num::<f64>() + duty[1].to_num::<f64>()),
-            AxisKind::Rotation => (
-                sample.rotation,
-                duty[1].to_num::<f64>() - duty[0].to_num::<f64>(),
-            ),
+        let axis = self.state.sample();
+        let share = match self.kind {
+            AxisKind::Forward => 2.0 * duty[0].to_num::<f64>(),
+            AxisKind::Rotation => duty[1].to_num::<f64>() - duty[0].to_num::<f64>(),
         };
         let c = self.count_size;
         let sp_counts: f64 = axis.setpoint.to_num();
-        let accel: f64 = match self.kind {
-            AxisKind::Forward => self.state.forward().profile().setpoint().accel,
-            AxisKind::Rotation => self.state.rotation().profile().setpoint().accel,
-        }
-        .to_num();
+        let accel: f64 = self.state.profile().setpoint().accel.to_num();
         LoopOutput {
             setpoint: Setpoint {
                 position: (sp_counts + self.origin_counts as f64) * c,

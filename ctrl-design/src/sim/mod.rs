@@ -358,7 +358,7 @@ fn run<C: Controller, R: Recorder>(cfg: &SimConfig, ctrl: &mut C, rec: &mut R) -
     for k in 0..cfg.ticks {
         let measured = match inv_count {
             Some(inv) => {
-                let counts = (drive.position * inv).floor();
+                let counts = floor(drive.position * inv);
                 Measurement {
                     counts: counts as i64,
                     position: counts * count_size,
@@ -390,4 +390,16 @@ fn run<C: Controller, R: Recorder>(cfg: &SimConfig, ctrl: &mut C, rec: &mut R) -
         drive.step(applied + d);
     }
     acc.finish(tick_s)
+}
+
+/// `x.floor()` without the library call (x86-64's baseline has no rounding instruction):
+/// exact for |x| < 2^63, saturating beyond like the cast.
+#[inline(always)]
+fn floor(x: f64) -> f64 {
+    let t = x as i64 as f64;
+    if t > x {
+        t - 1.0
+    } else {
+        t
+    }
 }
