@@ -261,6 +261,10 @@ fn check_valid(c: &Check) -> String {
             sig(c.limit)
         ),
         "stall_guard_ticks" => "1 to 65535 ticks".to_string(),
+        "stall_guard_margin" => format!(
+            "max_tracking_error above {} (the peak tracking error of a full-speed move)",
+            sig(c.value)
+        ),
         _ => format!(
             "{} {} {}",
             c.name.replace('_', " "),
@@ -743,7 +747,7 @@ fn design_axis(
         },
     );
 
-    Ok(AxisReport {
+    let report = AxisReport {
         axis: a.axis,
         plant,
         identification,
@@ -752,7 +756,116 @@ fn design_axis(
         response,
         peak_move_volts: peak,
         counts_per_unit: cpu,
-    })
+    };
+
+    // Stall guard against a normal move: a full-speed move through the firmware's
+    // fixed-point loop, with one tick of delay at the lowest supply, must stay below the
+    // guard's tracking-error limit, or the guard would trip on ordinary driving.
+    let distance = check_move_distance(a);
+    match simulate_move(design, &report, distance, low, 1) {
+        Ok((m, _)) => {
+            let limit = a.stall.max_tracking_error;
+            let ok = m.max_tracking_error < limit;
+            ck.record(
+                "stall_guard_margin",
+                m.max_tracking_error,
+                limit,
+                "unit",
+                ok,
+                false,
+                if ok {
+                    format!(
+                        "a {} {unit} full-speed move tracks within {} {unit} (guard limit {limit} {unit})",
+                        sig(distance),
+                        sig(m.max_tracking_error)
+                    )
+                } else {
+                    format!(
+                        "a {} {unit} full-speed move (fixed point, one tick of delay, {low} V) lags by {} {unit}, over the guard's limit {limit} {unit}: the guard would trip on ordinary moves; raise max_tracking_error or stiffen the loop",
+                        sig(distance),
+                        sig(m.max_tracking_error)
+                    )
+                },
+            );
+        }
+        Err(msg) => ck.record(
+            "stall_guard_margin",
+            f64::NAN,
+            a.stall.max_tracking_error,
+            "unit",
+            false,
+            true,
+            format!("not simulated: {msg}"),
+        ),
+    }
+    Ok(report)
+}
+
+/// Distance of the move the stall-guard check simulates: long enough to reach cruise speed
+/// and hold it for half a second.
+pub fn check_move_distance(a: &AxisDesign) -> f64 {
+    a.moves.cruise_speed * a.moves.cruise_speed / a.moves.accel + 0.5 * a.moves.cruise_speed
+}
+
+/// Simulates one move of `report`'s axis from rest through `ctrl-core`'s fixed-point drive
+/// (the loop the firmware runs, built by [`sim::quantize_axis`] like the emitted
+/// constants) against the exact drive model ([`sim::Drive`]), fed from `supply_volts`,
+/// with `delay_ticks` of computation delay, for the move's time plus 0.6 s. PD loops only.
+pub fn simulate_move(
+    design: &DesignFile,
+    report: &AxisReport,
+    distance: f64,
+    supply_volts: f64,
+    delay_ticks: u32,
+) -> Result<(sim::Metrics, sim::Trace), String> {
+    let (kp, kd) = match report.gains {
+        Gains::Pd { kp, kd, .. } => (kp, kd),
+        Gains::Lead { .. } => return Err("the move simulation runs PD loops only".into()),
+    };
+    let ad = design.axis(report.axis);
+    let rate = design.drive.loop_rate_hz;
+    let units = sim::FirmwareUnits {
+        count_size: 1.0 / report.counts_per_unit,
+        rate_hz: rate,
+    };
+    let loop_design = sim::LoopDesign {
+        kp,
+        kd,
+        derivative: sim::DerivativeForm::OnError,
+        feedforward: Some(sim::Feedforward::for_plant(&report.plant)),
+    };
+    let command = sim::Command::Move {
+        distance,
+        cruise_speed: ad.moves.cruise_speed,
+        accel: ad.moves.accel,
+    };
+    let q = sim::quantize_axis(
+        &loop_design,
+        &units,
+        design.supply.highest_volts,
+        f64::INFINITY,
+    )
+    .map_err(|e| e.to_string())?;
+    let kind = match report.axis {
+        Axis::Forward => sim::AxisKind::Forward,
+        Axis::Rotation => sim::AxisKind::Rotation,
+    };
+    let mut lp = sim::FirmwareLoop::new(&q, kind, &units, supply_volts, &command)
+        .map_err(|e| e.to_string())?;
+    let ticks = ((command.duration_s() + 0.6) * rate).ceil() as u32;
+    let cfg = sim::SimConfig {
+        plant: report.plant,
+        rate_hz: rate,
+        count_size: Some(units.count_size),
+        supply_volts,
+        delay_ticks,
+        disturbance: None,
+        command,
+        ticks,
+        band: 0.02,
+    };
+    cfg.check().map_err(|e| e.to_string())?;
+    Ok(sim::simulate_traced(&cfg, &mut lp))
 }
 
 // ---------------------------------------------------------------------------------------

@@ -283,22 +283,40 @@ fn unstable_discrete_loop_is_refused() {
 }
 
 #[test]
-fn a_constant_that_fixed_point_cannot_hold_is_refused() {
-    // 1e-5 mm = 2.7e-5 counts: an I16F16 step (1.5e-5) is over 50 % of it.
-    let src = DESIGN.replacen(
-        "max_tracking_error = 15.0",
-        "max_tracking_error = 0.00001",
-        1,
-    );
-    let (_, text) = refused("quant", &src);
+fn a_stall_limit_below_normal_tracking_is_refused() {
+    // A full-speed move lags by a fraction of a mm; a 0.01 mm limit would trip on it.
+    let src = DESIGN.replacen("max_tracking_error = 15.0", "max_tracking_error = 0.01", 1);
+    let (f, text) = refused("stall", &src);
+    assert_eq!(f.errors.len(), 1, "{text}");
+    let line = line_of(&src, "max_tracking_error = 0.01");
     assert!(
         text.contains(&format!(
-            ":{}: `forward.stall_guard.max_tracking_error`",
-            line_of(&src, "0.00001")
+            ":{line}: `forward.stall_guard.max_tracking_error`"
         )),
         "{text}"
     );
-    assert!(text.contains("quantization error at most 0.1 %"), "{text}");
+    assert!(text.contains("would trip on ordinary moves"), "{text}");
+}
+
+#[test]
+fn a_constant_above_the_quantization_limit_is_refused() {
+    // Coeff keeps about 2^-15 (3e-5) relative error; a limit of 1e-4 % refuses most gains,
+    // each at the key it comes from.
+    let src = format!("{DESIGN}\n[checks]\nmax_quantization_error_pct = 0.0001\n");
+    let (f, text) = refused("quant", &src);
+    assert!(f.errors.len() >= 4, "{text}");
+    assert!(
+        text.contains("`forward.loop`: constant forward.kp = "),
+        "{text}"
+    );
+    assert!(text.contains("relative error"), "{text}");
+    assert!(
+        text.contains("quantization error at most 0.0001 %"),
+        "{text}"
+    );
+    for e in &f.errors {
+        assert!(e.line.is_some(), "{e}");
+    }
 }
 
 #[test]

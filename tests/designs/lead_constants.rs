@@ -17,6 +17,7 @@
 //   forward  counts_per_tick      ok: at cruise the wheel moves 2.1827 counts per tick
 //   forward  peak_move_volts      ok: a 400 mm/s move at 1200 mm/s^2 needs 3.52222 V (lowest supply 6.4 V)
 //   forward  stall_guard_ticks    ok: trips after 100 ticks over the limit
+//   forward  stall_guard_margin   ok: a 333.333 mm full-speed move tracks within 0.684277 mm (guard limit 15 mm)
 //   rotation lead_feasible        ok: needs 15.0303 deg of lead at 12 rad/s (one stage gives up to 65 deg)
 //   rotation discrete_stable      ok: largest closed-loop pole magnitude 0.984334 (with one tick of delay)
 //   rotation overshoot            ok: 5.21802 % overshoot (discrete, one tick of delay)
@@ -25,6 +26,7 @@
 //   rotation counts_per_tick      ok: at cruise the wheel moves 1.52789 counts per tick
 //   rotation peak_move_volts      ok: a 4 rad/s move at 15 rad/s^2 needs 2.74231 V (lowest supply 6.4 V)
 //   rotation stall_guard_ticks    ok: trips after 100 ticks over the limit
+//   rotation stall_guard_margin   WARNING: not simulated: the move simulation runs PD loops only
 // Largest quantization error: 0.00235864 % (rotation.kv); limit 0.1 %.
 
 /// Loop rate, ticks per second.

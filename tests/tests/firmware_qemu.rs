@@ -17,8 +17,7 @@
 
 use std::time::Duration;
 
-use ctrl_design::design_file::Axis;
-use ctrl_design::emit::{emit, AxisReport, Emission, Gains};
+use ctrl_design::emit::{self, emit, AxisReport, Emission};
 use ctrl_design::sim;
 use ctrl_tests::{
     build_firmware, firmware_elf, firmware_target_dir, parse_moves, qemu_available, rover_dir,
@@ -33,49 +32,12 @@ const PEAK_DUTY_TOL: f64 = 0.03;
 const BATTERY_VOLTS: f64 = 7.4;
 
 /// Host simulation of one route leg: `ctrl-core`'s drive through the simulation's firmware
-/// loop, against the exact `f64` drive model, for as many ticks as the firmware ran.
-fn host_move(e: &Emission, r: &AxisReport, distance: f64, ticks: u32) -> sim::Metrics {
-    let (kp, kd) = match r.gains {
-        Gains::Pd { kp, kd, .. } => (kp, kd),
-        Gains::Lead { .. } => panic!("the demo uses PD loops"),
-    };
-    let ad = e.design.axis(r.axis);
-    let rate = e.design.drive.loop_rate_hz;
-    let units = sim::FirmwareUnits {
-        count_size: 1.0 / r.counts_per_unit,
-        rate_hz: rate,
-    };
-    let design = sim::LoopDesign {
-        kp,
-        kd,
-        derivative: sim::DerivativeForm::OnError,
-        feedforward: Some(sim::Feedforward::for_plant(&r.plant)),
-    };
-    let q = sim::quantize_axis(&design, &units, e.design.supply.highest_volts, 1e-3).unwrap();
-    let command = sim::Command::Move {
-        distance,
-        cruise_speed: ad.moves.cruise_speed,
-        accel: ad.moves.accel,
-    };
-    let kind = match r.axis {
-        Axis::Forward => sim::AxisKind::Forward,
-        Axis::Rotation => sim::AxisKind::Rotation,
-    };
-    let mut lp = sim::FirmwareLoop::new(&q, kind, &units, BATTERY_VOLTS, &command).unwrap();
-    let cfg = sim::SimConfig {
-        plant: r.plant,
-        rate_hz: rate,
-        count_size: Some(units.count_size),
-        supply_volts: BATTERY_VOLTS,
-        // The firmware applies each tick's duty right after computing it.
-        delay_ticks: 0,
-        disturbance: None,
-        command,
-        ticks,
-        band: 0.02,
-    };
-    cfg.check().unwrap();
-    sim::simulate(&cfg, &mut lp)
+/// loop against the exact `f64` drive model, on the firmware's battery, with no computation
+/// delay (the firmware applies each tick's duty right after computing it).
+fn host_move(e: &Emission, r: &AxisReport, distance: f64) -> sim::Metrics {
+    emit::simulate_move(&e.design, r, distance, BATTERY_VOLTS, 0)
+        .unwrap_or_else(|msg| panic!("{msg}"))
+        .0
 }
 
 #[test]
@@ -125,7 +87,7 @@ fn firmware_route_under_qemu_matches_the_host_simulation() {
         }
         assert_eq!(m.get("stalled"), Some("0"), "{m:?}");
         let (r, distance) = leg(&e, m);
-        let host = host_move(&e, r, distance, m.num("ticks") as u32);
+        let host = host_move(&e, r, distance);
         let host_counts = host.final_error * r.counts_per_unit;
         let fw_counts = m.num("final_error_counts");
         println!(

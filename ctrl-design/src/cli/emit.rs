@@ -37,62 +37,15 @@ fn demo_distance(axis: Axis) -> f64 {
     }
 }
 
-/// Simulates one move of `r`'s axis through `ctrl-core`'s fixed-point drive (the loop the
-/// firmware runs), at the lowest supply, and returns the figures and the trace.
-pub fn simulate_move(
+/// A move of `r`'s axis at the lowest supply with one tick of delay (the plots and the
+/// summary).
+fn simulate_move(
     e: &Emission,
     r: &AxisReport,
     distance: f64,
     supply_volts: f64,
 ) -> Result<(sim::Metrics, sim::Trace), String> {
-    let (kp, kd) = match r.gains {
-        Gains::Pd { kp, kd, .. } => (kp, kd),
-        Gains::Lead { .. } => return Err("the move simulation runs PD loops only".into()),
-    };
-    let ad = e.design.axis(r.axis);
-    let rate = e.design.drive.loop_rate_hz;
-    let units = sim::FirmwareUnits {
-        count_size: 1.0 / r.counts_per_unit,
-        rate_hz: rate,
-    };
-    let design = sim::LoopDesign {
-        kp,
-        kd,
-        derivative: sim::DerivativeForm::OnError,
-        feedforward: Some(sim::Feedforward::for_plant(&r.plant)),
-    };
-    let command = sim::Command::Move {
-        distance,
-        cruise_speed: ad.moves.cruise_speed,
-        accel: ad.moves.accel,
-    };
-    let q = sim::quantize_axis(
-        &design,
-        &units,
-        e.design.supply.highest_volts,
-        f64::INFINITY,
-    )
-    .map_err(|e| e.to_string())?;
-    let kind = match r.axis {
-        Axis::Forward => sim::AxisKind::Forward,
-        Axis::Rotation => sim::AxisKind::Rotation,
-    };
-    let mut lp = sim::FirmwareLoop::new(&q, kind, &units, supply_volts, &command)
-        .map_err(|e| e.to_string())?;
-    let ticks = ((command.duration_s() + 0.6) * rate).ceil() as u32;
-    let cfg = sim::SimConfig {
-        plant: r.plant,
-        rate_hz: rate,
-        count_size: Some(units.count_size),
-        supply_volts,
-        delay_ticks: 1,
-        disturbance: None,
-        command,
-        ticks,
-        band: 0.02,
-    };
-    cfg.check().map_err(|e| e.to_string())?;
-    Ok(sim::simulate_traced(&cfg, &mut lp))
+    emit::simulate_move(&e.design, r, distance, supply_volts, 1)
 }
 
 fn write_plots(e: &Emission, dir: &Path) -> Result<Vec<PathBuf>, CliError> {
