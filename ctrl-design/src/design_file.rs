@@ -51,7 +51,7 @@ pub const KEYS: &[KeyInfo] = &[
     KeyInfo { key: "drive.wheel_diameter_mm", unit: "mm", valid: "greater than 0, at most 2000", meaning: "wheel diameter" },
     KeyInfo { key: "drive.track_width_mm", unit: "mm", valid: "greater than 0, at most 10000", meaning: "distance between the two wheels' contact points" },
     KeyInfo { key: "drive.encoder_counts_per_rev", unit: "counts", valid: "integer 1 to 1000000", meaning: "encoder counts per wheel revolution (after any quadrature multiplication)" },
-    KeyInfo { key: "drive.encoder_counter_bits", unit: "bits", valid: "integer 8 to 32", meaning: "width of the hardware encoder counter (it wraps)" },
+    KeyInfo { key: "drive.encoder_counter_bits", unit: "bits", valid: "integer 16 to 32", meaning: "width of the hardware encoder counter (it wraps); ctrl-core reads its low 16 bits, so narrower counters are refused" },
     KeyInfo { key: "supply.lowest_volts", unit: "V", valid: "greater than 0, at most 100", meaning: "lowest battery voltage the design must work at" },
     KeyInfo { key: "supply.highest_volts", unit: "V", valid: "at least supply.lowest_volts, at most 100", meaning: "highest (full-charge) battery voltage" },
     KeyInfo { key: "<axis>.plant.gain", unit: "unit/s per V", valid: "greater than 0, at most 1e6", meaning: "steady speed per volt above the bias" },
@@ -733,7 +733,7 @@ impl Validator<'_> {
             encoder_counter_bits: self.int(
                 "drive.encoder_counter_bits",
                 &d.encoder_counter_bits,
-                8,
+                16,
                 32,
             ),
         };

@@ -149,7 +149,7 @@ fn out_of_range_values_each_name_key_line_and_range() {
             "encoder_counter_bits = 16",
             "encoder_counter_bits = 64",
             "drive.encoder_counter_bits",
-            "8 to 32",
+            "16 to 32",
         ),
         (
             "highest_volts = 8.4",
