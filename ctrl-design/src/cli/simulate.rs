@@ -159,8 +159,8 @@ impl Setup {
                 rate_hz: self.config.rate_hz,
             }),
             None => Err(CliError::bad_input(
-                "--arithmetic fixed needs the encoder: give --count-size or --counts-per-unit \
-                 (finite and > 0), or use --arithmetic f64",
+                "--count-size (or --counts-per-unit) is missing: the fixed-point loop reads \
+                 whole encoder counts; valid is a finite count size > 0 (or use --arithmetic f64)",
             )),
         }
     }
@@ -171,8 +171,8 @@ impl Setup {
             Ok(self.config.supply_volts)
         } else {
             Err(CliError::bad_input(
-                "--arithmetic fixed needs --supply (volts, finite and > 0): the firmware \
-                 compensates for it, or use --arithmetic f64",
+                "--supply is missing: the fixed-point loop compensates for the supply; valid is \
+                 finite volts > 0 (or use --arithmetic f64)",
             ))
         }
     }
