@@ -57,7 +57,7 @@ pub const KEYS: &[KeyInfo] = &[
     KeyInfo { key: "<axis>.plant.gain", unit: "unit/s per V", valid: "greater than 0, at most 1e6", meaning: "steady speed per volt above the bias" },
     KeyInfo { key: "<axis>.plant.time_constant_s", unit: "s", valid: "greater than 0, at most 10", meaning: "time constant of the speed response" },
     KeyInfo { key: "<axis>.plant.bias_volts", unit: "V", valid: "0 or more, below supply.lowest_volts", meaning: "friction bias: volts needed before the wheel moves" },
-    KeyInfo { key: "<axis>.plant.logs", unit: "paths", valid: "non-empty list of CSV files or directories of *.csv, relative to the design file; instead of gain/time_constant_s/bias_volts", meaning: "step logs to identify the plant from" },
+    KeyInfo { key: "<axis>.plant.logs", unit: "paths", valid: "non-empty list of CSV files, directories (meaning their *.csv) or file patterns with * (logs/forward/step_*.csv), relative to the design file; instead of gain/time_constant_s/bias_volts", meaning: "step logs to identify the plant from" },
     KeyInfo { key: "<axis>.plant.position_column", unit: "text", valid: "optional, with logs; default \"position\"", meaning: "name of the logs' position column (in the axis unit)" },
     KeyInfo { key: "<axis>.loop.kind", unit: "text", valid: "\"pd\" or \"lead\"", meaning: "position loop form" },
     KeyInfo { key: "<axis>.loop.damping", unit: "1", valid: "greater than 0, at most 3 (kind = \"pd\")", meaning: "target damping ratio" },
@@ -502,6 +502,26 @@ struct RawChecks {
     max_chatter_share: Option<Spanned<f64>>,
     min_rate_ratio: Option<Spanned<f64>>,
     max_quantization_error_pct: Option<Spanned<f64>>,
+}
+
+/// `true` when `name` matches `pattern`, where each `*` stands for any run of characters.
+fn wildcard_match(pattern: &str, name: &str) -> bool {
+    let parts: Vec<&str> = pattern.split('*').collect();
+    if parts.len() == 1 {
+        return pattern == name;
+    }
+    let (first, last) = (parts[0], parts[parts.len() - 1]);
+    if !name.starts_with(first) || name.len() < first.len() + last.len() || !name.ends_with(last) {
+        return false;
+    }
+    let mut rest = &name[first.len()..name.len() - last.len()];
+    for mid in &parts[1..parts.len() - 1] {
+        match rest.find(mid) {
+            Some(i) => rest = &rest[i + mid.len()..],
+            None => return false,
+        }
+    }
+    true
 }
 
 /// 1-based line of a byte offset.
@@ -1116,38 +1136,54 @@ impl Validator<'_> {
         for entry in logs.get_ref() {
             let line = Some(self.line(&entry.span()));
             let p = base.join(entry.get_ref());
-            if p.is_dir() {
-                let mut found: Vec<PathBuf> = match std::fs::read_dir(&p) {
-                    Ok(rd) => rd
-                        .filter_map(|e| e.ok().map(|e| e.path()))
-                        .filter(|f| f.extension().is_some_and(|x| x == "csv") && f.is_file())
-                        .collect(),
-                    Err(e) => {
-                        self.push(
-                            &key,
-                            line,
-                            format!("cannot read directory {}: {e}", p.display()),
-                            None,
-                        );
-                        continue;
-                    }
-                };
-                found.sort();
-                if found.is_empty() {
+            // A directory means its *.csv files; a `*` in the file name matches any run of
+            // characters (`logs/forward/step_*.csv`).
+            let pattern = p
+                .file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .filter(|n| n.contains('*'));
+            let (dir, pattern) = match pattern {
+                Some(pat) => (p.parent().unwrap_or(Path::new("")).to_path_buf(), pat),
+                None if p.is_dir() => (p.clone(), "*.csv".to_string()),
+                None if p.is_file() => {
+                    files.push(p);
+                    continue;
+                }
+                None => {
+                    self.push(&key, line, format!("{} does not exist", p.display()), None);
+                    continue;
+                }
+            };
+            let mut found: Vec<PathBuf> = match std::fs::read_dir(&dir) {
+                Ok(rd) => rd
+                    .filter_map(|e| e.ok().map(|e| e.path()))
+                    .filter(|f| {
+                        f.is_file()
+                            && f.file_name()
+                                .is_some_and(|n| wildcard_match(&pattern, &n.to_string_lossy()))
+                    })
+                    .collect(),
+                Err(e) => {
                     self.push(
                         &key,
                         line,
-                        format!("directory {} holds no *.csv file", p.display()),
+                        format!("cannot read directory {}: {e}", dir.display()),
                         None,
                     );
+                    continue;
                 }
-                dirs.push(p);
-                files.extend(found);
-            } else if p.is_file() {
-                files.push(p);
-            } else {
-                self.push(&key, line, format!("{} does not exist", p.display()), None);
+            };
+            found.sort();
+            if found.is_empty() {
+                self.push(
+                    &key,
+                    line,
+                    format!("no file in {} matches {pattern}", dir.display()),
+                    None,
+                );
             }
+            dirs.push(dir);
+            files.extend(found);
         }
         (self.errors.len() == before).then_some(PlantSource::Logs {
             files,
@@ -1160,6 +1196,18 @@ impl Validator<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn wildcards_match_runs_of_characters() {
+        assert!(wildcard_match("step_*.csv", "step_1v5.csv"));
+        assert!(wildcard_match("*.csv", "a.csv"));
+        assert!(wildcard_match("a*b*c", "aXXbYYc"));
+        assert!(wildcard_match("a*b*c", "abc"));
+        assert!(!wildcard_match("step_*.csv", "staircase.csv"));
+        assert!(!wildcard_match("a*a", "a"));
+        assert!(!wildcard_match("*.csv", "a.csv.bak"));
+        assert!(wildcard_match("x.csv", "x.csv"));
+    }
 
     #[test]
     fn key_at_reads_header_and_key() {

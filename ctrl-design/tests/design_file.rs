@@ -298,6 +298,20 @@ fn logs_resolve_against_the_design_folder() {
     let inputs = d.inputs();
     assert!(inputs.contains(&path) && inputs.contains(&logs.join("a.csv")));
 
+    let pattern = src.replace("\"logs/fwd\"", "\"logs/fwd/b*.csv\"");
+    let d = DesignFile::parse_str(&pattern, &path).unwrap();
+    match &d.forward.plant {
+        PlantSource::Logs { files, .. } => assert_eq!(files, &[logs.join("b.csv")]),
+        other => panic!("{other:?}"),
+    }
+    let e = DesignFile::parse_str(&src.replace("logs/fwd", "logs/fwd/z*.csv"), &path)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("no file in") && e.contains("matches z*.csv"),
+        "{e}"
+    );
+
     let missing = src.replace("logs/fwd", "logs/none");
     let e = DesignFile::parse_str(&missing, &path)
         .unwrap_err()
