@@ -24,8 +24,10 @@ pub fn firmware_dir() -> PathBuf {
     repo_root().join("examples/demo-firmware")
 }
 
-/// A target folder for one kind of firmware build, inside the workspace's target folder
-/// (`$CARGO_TARGET_DIR` or `target/`), so separate builds do not rebuild each other.
+/// A target folder for firmware builds, inside the workspace's target folder
+/// (`$CARGO_TARGET_DIR` or `target/`). The must-fail and QEMU tests share one: switching
+/// `CTRL_DESIGN_FILE` reruns only the build script and the firmware crate, not its
+/// dependencies.
 pub fn firmware_target_dir(name: &str) -> PathBuf {
     let base = std::env::var_os("CARGO_TARGET_DIR")
         .map(PathBuf::from)

@@ -53,7 +53,7 @@ fn firmware_route_under_qemu_matches_the_host_simulation() {
         );
         return;
     }
-    let target = firmware_target_dir("qemu");
+    let target = firmware_target_dir("tests");
     let out = build_firmware(None, &target);
     assert!(
         out.status.success(),

@@ -13,7 +13,7 @@ fn must_fail_design_refuses_to_build_for_the_right_reason() {
         .expect("the too-long settling time");
     let line = src[..at].matches('\n').count() + 1;
 
-    let out = build_firmware(Some(&design), &firmware_target_dir("must-fail"));
+    let out = build_firmware(Some(&design), &firmware_target_dir("tests"));
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(
         !out.status.success(),
