@@ -50,7 +50,7 @@ impl Inputs {
     }
     /// Next error: a small ramp (0.75, 0.875, ... counts) that never clamps.
     #[inline(always)]
-    fn next_error(&mut self) -> I16F16 {
+    pub fn next_error(&mut self) -> I16F16 {
         self.error = I16F16::from_bits(self.error.to_bits().wrapping_add(1 << 13));
         self.error
     }
@@ -99,6 +99,12 @@ pub struct State {
 }
 
 impl State {
+    /// Next tracking error of the single-loop paths (see [`Inputs::next_error`]).
+    #[inline(always)]
+    pub fn next_error(&mut self) -> I16F16 {
+        self.inputs.next_error()
+    }
+
     /// Fresh state: loops at rest, both moves just started on every profile. Planning a
     /// move is slow on a Cortex-M0 (i128 arithmetic), so this is built once and cloned.
     pub fn fresh() -> Self {

@@ -109,6 +109,8 @@ struct CoreResult {
     panics: Vec<(String, Vec<String>)>,
     /// Sizes of the larger functions in the `tick` build that are absent from `base`.
     tick_functions: Vec<(String, u64)>,
+    /// Ticks where the prototype profiles differ from the transcription of ctrl-core's.
+    proto_differ: Option<u64>,
 }
 
 impl CoreResult {
@@ -207,7 +209,7 @@ fn measure_core(
     }
     let tick_functions = added_functions(&elfs["base"], &elfs["tick"])?;
 
-    let (n, k, windows) = run_qemu(core, &elfs["paths"], out_dir, qemu, keep_logs)?;
+    let (n, k, windows, proto_differ) = run_qemu(core, &elfs["paths"], out_dir, qemu, keep_logs)?;
     Ok(CoreResult {
         triple: core.triple,
         label: core.label,
@@ -217,6 +219,7 @@ fn measure_core(
         text,
         panics,
         tick_functions,
+        proto_differ,
     })
 }
 
@@ -297,7 +300,7 @@ fn run_qemu(
     out_dir: &Path,
     qemu: &QemuFlavour,
     keep_logs: bool,
-) -> Result<(u64, u64, Windows), String> {
+) -> Result<(u64, u64, Windows, Option<u64>), String> {
     let data = fs::read(elf).map_err(|e| format!("{}: {e}", elf.display()))?;
     let file = object::File::parse(&*data).map_err(|e| format!("{}: {e}", elf.display()))?;
     let begin = symbol_address(&file, "bench_marker_begin")
@@ -359,6 +362,7 @@ fn run_qemu(
     let mut n = None;
     let mut k = None;
     let mut names = Vec::new();
+    let mut proto_differ = None;
     for line in stdout.lines() {
         let line = line.trim();
         if let Some(rest) = line.strip_prefix("bench-mcu ") {
@@ -372,6 +376,8 @@ fn run_qemu(
             }
         } else if let Some(name) = line.strip_prefix("path ") {
             names.push(name.to_string());
+        } else if let Some(rest) = line.strip_prefix("proto check: ") {
+            proto_differ = rest.split_whitespace().next().and_then(|v| v.parse::<u64>().ok());
         }
     }
     let n = n.ok_or_else(|| format!("{}: no `bench-mcu N=` line in firmware output:\n{stdout}", core.triple))?;
@@ -394,7 +400,7 @@ fn run_qemu(
         .enumerate()
         .map(|(i, name)| (name, counts[2 * i], counts[2 * i + 1]))
         .collect();
-    Ok((n, k, windows))
+    Ok((n, k, windows, proto_differ))
 }
 
 /// Counts `Trace` lines (one per executed instruction under one-instruction blocks and
@@ -645,6 +651,9 @@ fn check(results: &[CoreResult], limits: &Limits) -> Vec<String> {
             )),
             None => f.push(format!("{}: calibration path missing", r.triple)),
         }
+        if let Some(d) = r.proto_differ.filter(|d| *d != 0) {
+            f.push(format!("{}: prototype profiles differ from the i128 transcription on {d} ticks", r.triple));
+        }
         for (what, callers) in &r.panics {
             f.push(format!(
                 "{}: panic symbol `{what}` present; referenced from: {}",
@@ -786,6 +795,11 @@ fn render(results: &[CoreResult]) -> String {
         let _ = writeln!(s);
     }
 
+    for r in results {
+        if let Some(d) = r.proto_differ {
+            let _ = writeln!(s, "Prototype profiles against the i128 transcription on `{}`: {d} ticks differ.\n", r.triple);
+        }
+    }
     let _ = writeln!(s, "## Code size (`.text` bytes, release build)\n");
     let _ = write!(s, "| build |");
     for r in results {
