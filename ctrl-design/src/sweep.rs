@@ -82,7 +82,11 @@ impl std::error::Error for SweepError {}
 pub const MAX_RUNS: u64 = 10_000_000;
 
 /// The plants of a sweep around `nominal`, in run order.
-pub fn plants(nominal: &Plant, spread: &Spread, sampling: &Sampling) -> Result<Vec<Plant>, SweepError> {
+pub fn plants(
+    nominal: &Plant,
+    spread: &Spread,
+    sampling: &Sampling,
+) -> Result<Vec<Plant>, SweepError> {
     for (field, v) in [
         ("spread.gain", spread.gain),
         ("spread.time_constant", spread.time_constant),
@@ -221,7 +225,9 @@ impl Worst {
             max_tracking_error: self.max_tracking_error.merge(o.max_tracking_error),
             peak_volts: self.peak_volts.merge(o.peak_volts),
             rms_volts: self.rms_volts.merge(o.rms_volts),
-            voltage_total_variation: self.voltage_total_variation.merge(o.voltage_total_variation),
+            voltage_total_variation: self
+                .voltage_total_variation
+                .merge(o.voltage_total_variation),
             saturated_ticks: self.saturated_ticks.merge(o.saturated_ticks),
         }
     }
@@ -274,7 +280,12 @@ const CHUNK: usize = 64;
 ///
 /// `progress` is advanced by one per finished run (pass `ProgressBar::hidden()` for none).
 /// The result does not depend on the thread count.
-pub fn sweep<C, F>(base: &SimConfig, plants: &[Plant], make_loop: F, progress: &ProgressBar) -> SweepReport
+pub fn sweep<C, F>(
+    base: &SimConfig,
+    plants: &[Plant],
+    make_loop: F,
+    progress: &ProgressBar,
+) -> SweepReport
 where
     C: Controller,
     F: Fn() -> C + Sync,

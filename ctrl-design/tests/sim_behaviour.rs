@@ -103,7 +103,11 @@ fn load_disturbance_leaves_the_final_value_theorem_error() {
     });
     let m = run(&cfg, &d);
     let want = 0.3 / d.kp;
-    assert!((m.final_error - want).abs() < 1e-6 * want, "{} vs {want}", m.final_error);
+    assert!(
+        (m.final_error - want).abs() < 1e-6 * want,
+        "{} vs {want}",
+        m.final_error
+    );
 }
 
 // Clipping: the applied voltage never exceeds the supply, and a supply far below what the

@@ -12,8 +12,18 @@ fn tool(args: &[&str]) -> Output {
 }
 
 const ROVER: &[&str] = &[
-    "--plant-gain", "180", "--time-constant", "0.09", "--bias", "0.7", "--count-size", "0.36652",
-    "--supply", "6.4", "--delay-ticks", "1",
+    "--plant-gain",
+    "180",
+    "--time-constant",
+    "0.09",
+    "--bias",
+    "0.7",
+    "--count-size",
+    "0.36652",
+    "--supply",
+    "6.4",
+    "--delay-ticks",
+    "1",
 ];
 
 fn with(extra: &[&'static str]) -> Vec<&'static str> {
@@ -24,19 +34,41 @@ fn with(extra: &[&'static str]) -> Vec<&'static str> {
 fn simulate_prints_one_json_object_with_both_arithmetics() {
     let mut args = vec!["simulate"];
     args.extend(with(&[
-        "--kp", "0.12", "--kd", "0.004", "--distance", "400", "--cruise-speed", "400",
-        "--accel", "1200", "--arithmetic", "both", "--format", "json",
+        "--kp",
+        "0.12",
+        "--kd",
+        "0.004",
+        "--distance",
+        "400",
+        "--cruise-speed",
+        "400",
+        "--accel",
+        "1200",
+        "--arithmetic",
+        "both",
+        "--format",
+        "json",
     ]));
     let out = tool(&args);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let v: Value = serde_json::from_slice(&out.stdout).expect("one JSON object");
     let runs = v["runs"].as_array().unwrap();
     assert_eq!(runs.len(), 2);
     assert_eq!(runs[0]["arithmetic"], "fixed");
     assert_eq!(runs[1]["arithmetic"], "f64");
     for key in [
-        "overshoot_pct", "peak_time_s", "rise_time_s", "settling_time_s", "final_error",
-        "peak_volts", "rms_volts", "voltage_total_variation",
+        "overshoot_pct",
+        "peak_time_s",
+        "rise_time_s",
+        "settling_time_s",
+        "final_error",
+        "peak_volts",
+        "rms_volts",
+        "voltage_total_variation",
     ] {
         assert!(runs[0]["metrics"].get(key).is_some(), "missing {key}");
     }
@@ -50,10 +82,21 @@ fn simulate_prints_one_json_object_with_both_arithmetics() {
 fn simulate_designs_from_damping_and_settling_time() {
     let mut args = vec!["simulate"];
     args.extend(with(&[
-        "--damping", "0.9", "--settling-time", "0.3", "--step", "20", "--format", "json",
+        "--damping",
+        "0.9",
+        "--settling-time",
+        "0.3",
+        "--step",
+        "20",
+        "--format",
+        "json",
     ]));
     let out = tool(&args);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     // Pole placement (issue formulas): wn = 4 / (zeta ts), kp = wn^2 T / K.
     let wn = 4.0 / (0.9 * 0.3);
@@ -64,14 +107,146 @@ fn simulate_designs_from_damping_and_settling_time() {
 #[test]
 fn bad_input_exits_2_naming_the_flag_and_range() {
     let cases: &[(&[&str], &str)] = &[
-        (&["--plant-gain", "-3", "--time-constant", "0.09", "--kp", "1", "--kd", "0", "--step", "1", "--arithmetic", "f64"], "--plant-gain"),
-        (&["--plant-gain", "180", "--time-constant", "0.09", "--kp", "1", "--kd", "0", "--step", "1", "--delay-ticks", "40", "--arithmetic", "f64"], "--delay-ticks"),
-        (&["--plant-gain", "180", "--time-constant", "0.09", "--kp", "1", "--kd", "0", "--step", "0", "--arithmetic", "f64"], "--step"),
-        (&["--plant-gain", "180", "--time-constant", "0.09", "--kp", "1", "--kd", "0", "--distance", "5", "--cruise-speed", "0", "--accel", "1", "--arithmetic", "f64"], "--cruise-speed"),
-        (&["--plant-gain", "180", "--time-constant", "0.09", "--kp", "nan", "--kd", "0", "--step", "1", "--arithmetic", "f64"], "--kp"),
-        (&["--plant-gain", "180", "--time-constant", "0.09", "--kp", "1", "--kd", "0", "--step", "1"], "--count-size"),
-        (&["--plant-gain", "180", "--time-constant", "0.09", "--kp", "1", "--kd", "0", "--step", "1", "--count-size", "0.3"], "--supply"),
-        (&["--plant-gain", "180", "--time-constant", "0.09", "--damping", "0.8", "--settling-time", "30", "--step", "1", "--arithmetic", "f64"], "settling"),
+        (
+            &[
+                "--plant-gain",
+                "-3",
+                "--time-constant",
+                "0.09",
+                "--kp",
+                "1",
+                "--kd",
+                "0",
+                "--step",
+                "1",
+                "--arithmetic",
+                "f64",
+            ],
+            "--plant-gain",
+        ),
+        (
+            &[
+                "--plant-gain",
+                "180",
+                "--time-constant",
+                "0.09",
+                "--kp",
+                "1",
+                "--kd",
+                "0",
+                "--step",
+                "1",
+                "--delay-ticks",
+                "40",
+                "--arithmetic",
+                "f64",
+            ],
+            "--delay-ticks",
+        ),
+        (
+            &[
+                "--plant-gain",
+                "180",
+                "--time-constant",
+                "0.09",
+                "--kp",
+                "1",
+                "--kd",
+                "0",
+                "--step",
+                "0",
+                "--arithmetic",
+                "f64",
+            ],
+            "--step",
+        ),
+        (
+            &[
+                "--plant-gain",
+                "180",
+                "--time-constant",
+                "0.09",
+                "--kp",
+                "1",
+                "--kd",
+                "0",
+                "--distance",
+                "5",
+                "--cruise-speed",
+                "0",
+                "--accel",
+                "1",
+                "--arithmetic",
+                "f64",
+            ],
+            "--cruise-speed",
+        ),
+        (
+            &[
+                "--plant-gain",
+                "180",
+                "--time-constant",
+                "0.09",
+                "--kp",
+                "nan",
+                "--kd",
+                "0",
+                "--step",
+                "1",
+                "--arithmetic",
+                "f64",
+            ],
+            "--kp",
+        ),
+        (
+            &[
+                "--plant-gain",
+                "180",
+                "--time-constant",
+                "0.09",
+                "--kp",
+                "1",
+                "--kd",
+                "0",
+                "--step",
+                "1",
+            ],
+            "--count-size",
+        ),
+        (
+            &[
+                "--plant-gain",
+                "180",
+                "--time-constant",
+                "0.09",
+                "--kp",
+                "1",
+                "--kd",
+                "0",
+                "--step",
+                "1",
+                "--count-size",
+                "0.3",
+            ],
+            "--supply",
+        ),
+        (
+            &[
+                "--plant-gain",
+                "180",
+                "--time-constant",
+                "0.09",
+                "--damping",
+                "0.8",
+                "--settling-time",
+                "30",
+                "--step",
+                "1",
+                "--arithmetic",
+                "f64",
+            ],
+            "settling",
+        ),
     ];
     for (args, flag) in cases {
         let mut a = vec!["simulate"];
@@ -91,15 +266,37 @@ fn plot_writes_an_svg() {
     let p = path.to_str().unwrap().to_string();
     let mut args: Vec<&str> = vec!["simulate"];
     args.extend(with(&[
-        "--kp", "0.12", "--kd", "0.004", "--distance", "400", "--cruise-speed", "400",
-        "--accel", "1200", "--unit", "mm", "--plot",
+        "--kp",
+        "0.12",
+        "--kd",
+        "0.004",
+        "--distance",
+        "400",
+        "--cruise-speed",
+        "400",
+        "--accel",
+        "1200",
+        "--unit",
+        "mm",
+        "--plot",
     ]));
     args.push(&p);
     let out = tool(&args);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let svg = std::fs::read_to_string(&path).unwrap();
     assert!(svg.starts_with("<svg"));
-    for label in ["position", "speed", "voltage", "feedforward", "feedback", "setpoint"] {
+    for label in [
+        "position",
+        "speed",
+        "voltage",
+        "feedforward",
+        "feedback",
+        "setpoint",
+    ] {
         assert!(svg.contains(label), "plot lacks {label}");
     }
     std::fs::remove_dir_all(&dir).ok();
@@ -110,12 +307,30 @@ fn sweep_json_has_the_worst_cases_and_is_seeded() {
     let run = |seed: &'static str| {
         let mut args = vec!["sweep"];
         args.extend(with(&[
-            "--kp", "0.12", "--kd", "0.004", "--distance", "300", "--cruise-speed", "400",
-            "--accel", "1200", "--samples", "200", "--seed", seed, "--format", "json",
+            "--kp",
+            "0.12",
+            "--kd",
+            "0.004",
+            "--distance",
+            "300",
+            "--cruise-speed",
+            "400",
+            "--accel",
+            "1200",
+            "--samples",
+            "200",
+            "--seed",
+            seed,
+            "--format",
+            "json",
             "--quiet",
         ]));
         let out = tool(&args);
-        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
         assert!(out.stderr.is_empty(), "quiet means quiet");
         let v: Value = serde_json::from_slice(&out.stdout).unwrap();
         v
@@ -126,7 +341,9 @@ fn sweep_json_has_the_worst_cases_and_is_seeded() {
     assert!(w["value"].is_number() && w["plant"]["gain"].is_number() && w["run"].is_number());
     assert_eq!(a["worst"], run("5")["worst"]);
     let mut bad = vec!["sweep"];
-    bad.extend(with(&["--kp", "0.12", "--kd", "0.004", "--step", "5", "--spread", "150"]));
+    bad.extend(with(&[
+        "--kp", "0.12", "--kd", "0.004", "--step", "5", "--spread", "150",
+    ]));
     let out = tool(&bad);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("--spread"));

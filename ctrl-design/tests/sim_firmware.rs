@@ -19,18 +19,20 @@ use ctrl_core::supply::Supply;
 use ctrl_core::Coeff;
 use ctrl_design::sim::{
     quantize_axis, quantize_move, simulate, simulate_traced, AxisKind, Command, DerivativeForm,
-    Feedforward, FirmwareLoop, FirmwareUnits, IdealLoop, LoopDesign, SimConfig,
-    MAX_RELATIVE_ERROR,
+    Feedforward, FirmwareLoop, FirmwareUnits, IdealLoop, LoopDesign, SimConfig, MAX_RELATIVE_ERROR,
 };
-use fixed::types::I16F16;
 use ctrl_design::Plant;
+use fixed::types::I16F16;
 use proptest::prelude::*;
 use serde_json::Value;
 
 const LSB: f64 = 1.0 / 65536.0; // I16F16
 
 fn sensitivity(delay: u64) -> (f64, f64) {
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/../reference/sim/linear_reference.json");
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../reference/sim/linear_reference.json"
+    );
     let v: Value = serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
     let s = v["sensitivity"]
         .as_array()
@@ -110,7 +112,10 @@ fn fixed_point_loop_stays_within_the_quantization_bound() {
             .zip(&ti.position)
             .map(|(s, x)| s - x)
             .collect();
-        let de = e.windows(2).map(|w| (w[1] - w[0]).abs()).fold(0.0, f64::max);
+        let de = e
+            .windows(2)
+            .map(|w| (w[1] - w[0]).abs())
+            .fold(0.0, f64::max);
         let e_max = maxabs(&e) + 1.0;
         let de_max = de + 2.0 * (1.0 + c);
         let s_max = maxabs(&ti.setpoint_speed);
@@ -128,11 +133,7 @@ fn fixed_point_loop_stays_within_the_quantization_bound() {
         //     its difference < 2 LSB) through kp and kd_per_tick; setpoint speed and accel
         //     narrowed (< 1 LSB each) through kv and ka;
         let rounding = LSB
-            * (2.0
-                + r.kp.held
-                + 2.0 * r.kd_per_tick.held
-                + ff.kv().to_f64()
-                + ff.ka().to_f64());
+            * (2.0 + r.kp.held + 2.0 * r.kd_per_tick.held + ff.kv().to_f64() + ff.ka().to_f64());
         // (c) supply compensation: the stored reciprocal within 1e-4 relative, the duty
         //     product rounded to 0.5 LSB, times the supply.
         let duty = 1e-4 * v_max + 0.5 * LSB * supply;
@@ -151,7 +152,10 @@ fn fixed_point_loop_stays_within_the_quantization_bound() {
         );
         // The bound is tight enough to matter: far below one count of the demo's encoder, and
         // far below what a slip of one tick or of a unit conversion would cause.
-        assert!(bound < 0.05, "bound {bound} mm is too loose to test anything");
+        assert!(
+            bound < 0.05,
+            "bound {bound} mm is too loose to test anything"
+        );
     }
 }
 
@@ -178,7 +182,12 @@ fn single_axis_path_equals_the_two_axis_drive_bit_for_bit() {
         let mut lp = FirmwareLoop::new(&q, kind, &units, 6.4, &command).unwrap();
         let quiet = Axis::new(
             ctrl_core::feedforward::Feedforward::NONE,
-            Feedback::Pd(Pd::new(Coeff::ZERO, Coeff::ZERO, Derivative::OnError, I16F16::ZERO)),
+            Feedback::Pd(Pd::new(
+                Coeff::ZERO,
+                Coeff::ZERO,
+                Derivative::OnError,
+                I16F16::ZERO,
+            )),
             StallGuard::OFF,
         );
         let active = q.axis(StallGuard::OFF);
@@ -186,7 +195,13 @@ fn single_axis_path_equals_the_two_axis_drive_bit_for_bit() {
             AxisKind::Forward => (active, quiet),
             AxisKind::Rotation => (quiet, active),
         };
-        let drive = TwoAxisDrive::new(Encoders::new(false, false), f, r, Supply::new(I16F16::ZERO), battery);
+        let drive = TwoAxisDrive::new(
+            Encoders::new(false, false),
+            f,
+            r,
+            Supply::new(I16F16::ZERO),
+            battery,
+        );
         let mut st = DriveState::new();
         drive.set_battery(&mut st, battery);
         let mv = quantize_move(distance, cruise, accel, &units).unwrap();
@@ -203,7 +218,11 @@ fn single_axis_path_equals_the_two_axis_drive_bit_for_bit() {
                 AxisKind::Forward => (raw, raw),
                 AxisKind::Rotation => (raw.wrapping_neg(), raw),
             };
-            assert_eq!(lp.read(counts), drive.tick(&mut st, l, r), "{kind:?} tick {k}");
+            assert_eq!(
+                lp.read(counts),
+                drive.tick(&mut st, l, r),
+                "{kind:?} tick {k}"
+            );
         }
     }
 }
@@ -248,7 +267,10 @@ fn rotation_axis_runs_the_same_loop() {
     };
     let (f, r) = (run(AxisKind::Forward), run(AxisKind::Rotation));
     let count = units.count_size;
-    assert!((f.final_error - r.final_error).abs() < 0.01 * count, "{f:?}\n{r:?}");
+    assert!(
+        (f.final_error - r.final_error).abs() < 0.01 * count,
+        "{f:?}\n{r:?}"
+    );
     assert!((f.max_tracking_error - r.max_tracking_error).abs() < 0.01 * count);
     assert!((f.peak_volts - r.peak_volts).abs() <= 2.0 * 6.4 / 65536.0);
     assert_eq!(

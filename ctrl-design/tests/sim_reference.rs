@@ -17,7 +17,10 @@ use ctrl_design::Plant;
 use serde_json::Value;
 
 fn reference() -> Value {
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/../reference/sim/linear_reference.json");
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../reference/sim/linear_reference.json"
+    );
     let text = std::fs::read_to_string(path).expect("reference file is committed");
     serde_json::from_str(&text).expect("reference is JSON")
 }
@@ -93,7 +96,12 @@ fn linear_responses_match_python_control() {
         let (config, design) = case_setup(&root, case);
         let mut ctrl = IdealLoop::new(&design, &config.command, config.rate_hz);
         let (m, trace) = simulate_traced(&config, &mut ctrl);
-        assert_close(name, "position", &trace.position, &series(&case["position"]));
+        assert_close(
+            name,
+            "position",
+            &trace.position,
+            &series(&case["position"]),
+        );
         assert_close(
             name,
             "applied_volts",
@@ -102,13 +110,27 @@ fn linear_responses_match_python_control() {
         );
         // The untraced run gives the same figures.
         let mut again = IdealLoop::new(&design, &config.command, config.rate_hz);
-        assert_eq!(simulate(&config, &mut again), m, "{name}: traced and untraced differ");
+        assert_eq!(
+            simulate(&config, &mut again),
+            m,
+            "{name}: traced and untraced differ"
+        );
         if let Some(info) = case.get("step_info") {
             let close = |a: f64, b: f64, tol: f64, what: &str| {
                 assert!((a - b).abs() <= tol, "{name} {what}: {a} vs step_info {b}")
             };
-            close(m.rise_time_s.unwrap(), f(&info["RiseTime"]), 1e-12, "rise time");
-            close(m.settling_time_s.unwrap(), f(&info["SettlingTime"]), 1e-12, "settling");
+            close(
+                m.rise_time_s.unwrap(),
+                f(&info["RiseTime"]),
+                1e-12,
+                "rise time",
+            );
+            close(
+                m.settling_time_s.unwrap(),
+                f(&info["SettlingTime"]),
+                1e-12,
+                "settling",
+            );
             close(m.overshoot_pct, f(&info["Overshoot"]), 1e-9, "overshoot");
             close(m.peak_time_s, f(&info["PeakTime"]), 1e-12, "peak time");
         }

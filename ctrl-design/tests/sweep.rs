@@ -40,7 +40,10 @@ fn setup() -> (SimConfig, LoopDesign) {
 }
 
 /// The worst case found by brute force over the individual runs, for one figure.
-fn brute(runs: &[(Plant, Metrics)], value: impl Fn(&Metrics) -> Option<f64>) -> (Option<f64>, usize) {
+fn brute(
+    runs: &[(Plant, Metrics)],
+    value: impl Fn(&Metrics) -> Option<f64>,
+) -> (Option<f64>, usize) {
     let mut best: Option<(f64, usize)> = None;
     for (i, (_, m)) in runs.iter().enumerate() {
         let v = value(m).unwrap_or(f64::INFINITY);
@@ -54,24 +57,36 @@ fn brute(runs: &[(Plant, Metrics)], value: impl Fn(&Metrics) -> Option<f64>) -> 
 
 fn check_worst(report: &SweepReport, runs: &[(Plant, Metrics)]) {
     let w = report.worst.expect("non-empty sweep");
-    let pairs: [(&str, &WorstCase, fn(&Metrics) -> Option<f64>); 10] = [
+    type Figure = fn(&Metrics) -> Option<f64>;
+    let pairs: [(&str, &WorstCase, Figure); 10] = [
         ("overshoot", &w.overshoot_pct, |m| Some(m.overshoot_pct)),
         ("peak time", &w.peak_time_s, |m| Some(m.peak_time_s)),
         ("rise time", &w.rise_time_s, |m| m.rise_time_s),
         ("settling", &w.settling_time_s, |m| m.settling_time_s),
-        ("final error", &w.final_error_abs, |m| Some(m.final_error.abs())),
-        ("tracking", &w.max_tracking_error, |m| Some(m.max_tracking_error)),
+        ("final error", &w.final_error_abs, |m| {
+            Some(m.final_error.abs())
+        }),
+        ("tracking", &w.max_tracking_error, |m| {
+            Some(m.max_tracking_error)
+        }),
         ("peak volts", &w.peak_volts, |m| Some(m.peak_volts)),
         ("rms volts", &w.rms_volts, |m| Some(m.rms_volts)),
-        ("variation", &w.voltage_total_variation, |m| Some(m.voltage_total_variation)),
-        ("saturated", &w.saturated_ticks, |m| Some(f64::from(m.saturated_ticks))),
+        ("variation", &w.voltage_total_variation, |m| {
+            Some(m.voltage_total_variation)
+        }),
+        ("saturated", &w.saturated_ticks, |m| {
+            Some(f64::from(m.saturated_ticks))
+        }),
     ];
     for (name, got, value) in pairs {
         let (v, i) = brute(runs, value);
         assert_eq!((got.value, got.run), (v, i), "{name}");
         assert_eq!(got.plant, runs[i].0, "{name}: plant of the worst run");
     }
-    let unsettled = runs.iter().filter(|(_, m)| m.settling_time_s.is_none()).count();
+    let unsettled = runs
+        .iter()
+        .filter(|(_, m)| m.settling_time_s.is_none())
+        .count();
     assert_eq!(report.unsettled_runs, unsettled);
     assert_eq!(report.runs, runs.len());
 }
@@ -80,7 +95,15 @@ fn check_worst(report: &SweepReport, runs: &[(Plant, Metrics)]) {
 fn worst_case_is_the_maximum_over_the_individual_runs() {
     let (config, design) = setup();
     let spread = Spread::uniform(0.3);
-    let ps = plants(&nominal(), &spread, &Sampling::MonteCarlo { samples: 150, seed: 7 }).unwrap();
+    let ps = plants(
+        &nominal(),
+        &spread,
+        &Sampling::MonteCarlo {
+            samples: 150,
+            seed: 7,
+        },
+    )
+    .unwrap();
     // f64 loop
     let report = sweep(
         &config,
@@ -91,8 +114,17 @@ fn worst_case_is_the_maximum_over_the_individual_runs() {
     let runs: Vec<(Plant, Metrics)> = ps
         .iter()
         .map(|p| {
-            let cfg = SimConfig { plant: *p, ..config };
-            (*p, simulate(&cfg, &mut IdealLoop::new(&design, &cfg.command, cfg.rate_hz)))
+            let cfg = SimConfig {
+                plant: *p,
+                ..config
+            };
+            (
+                *p,
+                simulate(
+                    &cfg,
+                    &mut IdealLoop::new(&design, &cfg.command, cfg.rate_hz),
+                ),
+            )
         })
         .collect();
     check_worst(&report, &runs);
@@ -102,12 +134,16 @@ fn worst_case_is_the_maximum_over_the_individual_runs() {
         rate_hz: 500.0,
     };
     let (proto, _) =
-        FirmwareLoop::from_design(&design, AxisKind::Forward, &units, 6.4, &config.command).unwrap();
+        FirmwareLoop::from_design(&design, AxisKind::Forward, &units, 6.4, &config.command)
+            .unwrap();
     let report = sweep(&config, &ps, || proto.clone(), &ProgressBar::hidden());
     let runs: Vec<(Plant, Metrics)> = ps
         .iter()
         .map(|p| {
-            let cfg = SimConfig { plant: *p, ..config };
+            let cfg = SimConfig {
+                plant: *p,
+                ..config
+            };
             (*p, simulate(&cfg, &mut proto.clone()))
         })
         .collect();
@@ -118,7 +154,14 @@ fn worst_case_is_the_maximum_over_the_individual_runs() {
 fn sweep_is_reproducible_from_its_seed_and_independent_of_threads() {
     let (config, design) = setup();
     let spread = Spread::uniform(0.2);
-    let draw = |seed| plants(&nominal(), &spread, &Sampling::MonteCarlo { samples: 300, seed }).unwrap();
+    let draw = |seed| {
+        plants(
+            &nominal(),
+            &spread,
+            &Sampling::MonteCarlo { samples: 300, seed },
+        )
+        .unwrap()
+    };
     assert_eq!(draw(42), draw(42));
     assert_ne!(draw(42), draw(43));
     let ps = draw(42);
@@ -147,8 +190,17 @@ fn draws_stay_in_their_ranges_and_the_grid_spans_them() {
         time_constant: 0.1,
         bias: 0.5,
     };
-    let mc = plants(&p, &spread, &Sampling::MonteCarlo { samples: 2000, seed: 1 }).unwrap();
-    let within = |v: f64, nom: f64, s: f64| v >= nom * (1.0 - s) - 1e-12 && v <= nom * (1.0 + s) + 1e-12;
+    let mc = plants(
+        &p,
+        &spread,
+        &Sampling::MonteCarlo {
+            samples: 2000,
+            seed: 1,
+        },
+    )
+    .unwrap();
+    let within =
+        |v: f64, nom: f64, s: f64| v >= nom * (1.0 - s) - 1e-12 && v <= nom * (1.0 + s) + 1e-12;
     assert!(mc.iter().all(|q| within(q.gain, p.gain, 0.2)
         && within(q.time_constant_s, p.time_constant_s, 0.1)
         && within(q.bias_volts, p.bias_volts, 0.5)));
@@ -160,7 +212,10 @@ fn draws_stay_in_their_ranges_and_the_grid_spans_them() {
     assert_eq!(grid[0].gain, p.gain * 0.8);
     assert_eq!(grid[26].bias_volts, p.bias_volts * 1.5);
     assert!(grid.contains(&p), "an odd grid holds the nominal plant");
-    assert_eq!(plants(&p, &spread, &Sampling::Grid { points: 1 }).unwrap(), vec![p]);
+    assert_eq!(
+        plants(&p, &spread, &Sampling::Grid { points: 1 }).unwrap(),
+        vec![p]
+    );
 }
 
 #[test]
@@ -170,8 +225,21 @@ fn out_of_range_requests_are_refused_with_the_field() {
     assert_eq!(e.field, "spread.gain");
     let e = plants(&p, &Spread::uniform(0.2), &Sampling::Grid { points: 0 }).unwrap_err();
     assert_eq!(e.field, "grid");
-    let e = plants(&p, &Spread::uniform(0.2), &Sampling::MonteCarlo { samples: 0, seed: 0 }).unwrap_err();
+    let e = plants(
+        &p,
+        &Spread::uniform(0.2),
+        &Sampling::MonteCarlo {
+            samples: 0,
+            seed: 0,
+        },
+    )
+    .unwrap_err();
     assert_eq!(e.field, "samples");
-    let e = plants(&p, &Spread::uniform(f64::NAN), &Sampling::Grid { points: 2 }).unwrap_err();
+    let e = plants(
+        &p,
+        &Spread::uniform(f64::NAN),
+        &Sampling::Grid { points: 2 },
+    )
+    .unwrap_err();
     assert!(e.to_string().contains("valid is"));
 }

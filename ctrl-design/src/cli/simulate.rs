@@ -4,9 +4,8 @@
 use super::{CliError, Format};
 use ctrl_design::analysis::SettlingBand;
 use ctrl_design::sim::{
-    self, AxisKind, Command, DerivativeForm, Disturbance, Feedforward, FirmwareLoop,
-    FirmwareUnits, IdealLoop, LoopDesign, Metrics, QuantizationReport, SimConfig, SimError,
-    Trace,
+    self, AxisKind, Command, DerivativeForm, Disturbance, Feedforward, FirmwareLoop, FirmwareUnits,
+    IdealLoop, LoopDesign, Metrics, QuantizationReport, SimConfig, SimError, Trace,
 };
 use ctrl_design::tune;
 use ctrl_design::Plant;
@@ -52,7 +51,12 @@ pub struct SimArgs {
     #[arg(long, allow_negative_numbers = true, value_name = "T")]
     pub time_constant: f64,
     /// Friction bias, V (>= 0).
-    #[arg(long, allow_negative_numbers = true, value_name = "VOLTS", default_value_t = 0.0)]
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "VOLTS",
+        default_value_t = 0.0
+    )]
     pub bias: f64,
     /// Proportional gain, V per unit of position error (> 0); with --kd, instead of
     /// --damping/--settling-time.
@@ -65,7 +69,12 @@ pub struct SimArgs {
     #[arg(long, allow_negative_numbers = true, requires = "settling_time")]
     pub damping: Option<f64>,
     /// Settling time for the pole-placement design, s (to the --band).
-    #[arg(long, value_name = "S", allow_negative_numbers = true, requires = "damping")]
+    #[arg(
+        long,
+        value_name = "S",
+        allow_negative_numbers = true,
+        requires = "damping"
+    )]
     pub settling_time: Option<f64>,
     /// Axis of the two-wheel drive the firmware loop runs on.
     #[arg(long, value_enum, default_value = "forward")]
@@ -74,11 +83,21 @@ pub struct SimArgs {
     #[arg(long, value_enum, default_value = "on-error")]
     pub derivative: DerivativeArg,
     /// Loop rate, Hz (> 0).
-    #[arg(long, allow_negative_numbers = true, value_name = "HZ", default_value_t = 500.0)]
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "HZ",
+        default_value_t = 500.0
+    )]
     pub rate: f64,
     /// Encoder counts per unit (> 0); without it (or --count-size) the position is read
     /// exactly.
-    #[arg(long, allow_negative_numbers = true, value_name = "N", conflicts_with = "count_size")]
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "N",
+        conflicts_with = "count_size"
+    )]
     pub counts_per_unit: Option<f64>,
     /// Distance of one encoder count, units (> 0).
     #[arg(long, allow_negative_numbers = true, value_name = "UNITS")]
@@ -98,7 +117,12 @@ pub struct SimArgs {
     #[arg(long, value_name = "VOLTS", allow_negative_numbers = true)]
     pub disturbance: Option<f64>,
     /// When the load starts, s (>= 0).
-    #[arg(long, allow_negative_numbers = true, value_name = "S", default_value_t = 0.0)]
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "S",
+        default_value_t = 0.0
+    )]
     pub disturbance_at: f64,
     /// A setpoint step of this distance, units (non-zero).
     #[arg(long, value_name = "UNITS", allow_negative_numbers = true, conflicts_with_all = ["distance", "cruise_speed", "accel"])]
@@ -116,7 +140,12 @@ pub struct SimArgs {
     #[arg(long, allow_negative_numbers = true, value_name = "S")]
     pub duration: Option<f64>,
     /// Settling band, percent of the distance (0 < band < 100).
-    #[arg(long, allow_negative_numbers = true, value_name = "PERCENT", default_value_t = 2.0)]
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "PERCENT",
+        default_value_t = 2.0
+    )]
     pub band: f64,
 }
 
@@ -181,8 +210,14 @@ impl Setup {
     pub fn firmware_loop(&self) -> Result<(FirmwareLoop, QuantizationReport), CliError> {
         let units = self.units()?;
         let supply = self.supply()?;
-        FirmwareLoop::from_design(&self.design, self.axis, &units, supply, &self.config.command)
-            .map_err(|e| CliError::bad_input(format!("the design cannot run in fixed point: {e}")))
+        FirmwareLoop::from_design(
+            &self.design,
+            self.axis,
+            &units,
+            supply,
+            &self.config.command,
+        )
+        .map_err(|e| CliError::bad_input(format!("the design cannot run in fixed point: {e}")))
     }
 }
 
@@ -208,7 +243,9 @@ fn flag_of(field: &str) -> &'static str {
 }
 
 fn bad(flag: &str, value: f64, valid: &str) -> CliError {
-    CliError::bad_input(format!("{flag} = {value} is out of range: valid is {valid}"))
+    CliError::bad_input(format!(
+        "{flag} = {value} is out of range: valid is {valid}"
+    ))
 }
 
 /// A [`SimError`] as a refused input naming the flag.
@@ -218,26 +255,36 @@ pub fn sim_error(e: SimError) -> CliError {
     } else {
         e.valid
     };
-    let value = if e.field == "band" { e.value * 100.0 } else { e.value };
+    let value = if e.field == "band" {
+        e.value * 100.0
+    } else {
+        e.value
+    };
     bad(flag_of(e.field), value, valid)
 }
 
 impl SimArgs {
     /// Checks the flags and builds the run and the loop.
     pub fn setup(&self) -> Result<Setup, CliError> {
-        let plant = Plant::new(self.plant_gain, self.time_constant, self.bias)
-            .map_err(|ctrl_design::PlantError::OutOfRange { field, value, valid }| {
-                bad(flag_of(field), value, valid)
-            })?;
+        let plant = Plant::new(self.plant_gain, self.time_constant, self.bias).map_err(
+            |ctrl_design::PlantError::OutOfRange {
+                 field,
+                 value,
+                 valid,
+             }| { bad(flag_of(field), value, valid) },
+        )?;
         let (kp, kd) = match (self.kp, self.kd, self.damping, self.settling_time) {
             (Some(kp), Some(kd), _, _) => (kp, kd),
             (_, _, Some(zeta), Some(ts)) => {
                 let band = SettlingBand::percent(self.band).ok_or_else(|| {
-                    bad("--band", self.band, "0 < band < 50 (percent) for a pole-placement design")
+                    bad(
+                        "--band",
+                        self.band,
+                        "0 < band < 50 (percent) for a pole-placement design",
+                    )
                 })?;
-                let pd = tune::design_pd(&plant, zeta, ts, band).map_err(|e| {
-                    CliError::bad_input(format!("pole placement refused: {e}"))
-                })?;
+                let pd = tune::design_pd(&plant, zeta, ts, band)
+                    .map_err(|e| CliError::bad_input(format!("pole placement refused: {e}")))?;
                 (pd.kp, pd.kd)
             }
             _ => {
@@ -255,7 +302,11 @@ impl SimArgs {
         let count_size = match (self.counts_per_unit, self.count_size) {
             (Some(n), _) => {
                 if !(n.is_finite() && n > 0.0) {
-                    return Err(bad("--counts-per-unit", n, "finite and > 0 (counts per unit)"));
+                    return Err(bad(
+                        "--counts-per-unit",
+                        n,
+                        "finite and > 0 (counts per unit)",
+                    ));
                 }
                 Some(1.0 / n)
             }
@@ -268,11 +319,9 @@ impl SimArgs {
                 cruise_speed: self.cruise_speed.unwrap_or(f64::NAN),
                 accel: self.accel.unwrap_or(f64::NAN),
             },
-            (None, None) => {
-                return Err(CliError::bad_input(
-                    "give a command: --step DISTANCE, or --distance with --cruise-speed and --accel",
-                ))
-            }
+            (None, None) => return Err(CliError::bad_input(
+                "give a command: --step DISTANCE, or --distance with --cruise-speed and --accel",
+            )),
         };
         let disturbance = self.disturbance.map(|v| Disturbance {
             volts: v,
@@ -304,9 +353,7 @@ impl SimArgs {
             }
         }
         config.check().map_err(sim_error)?;
-        let duration = self
-            .duration
-            .unwrap_or_else(|| command.duration_s() + 1.0);
+        let duration = self.duration.unwrap_or_else(|| command.duration_s() + 1.0);
         let ticks = (duration * self.rate).round();
         if !(ticks >= 1.0 && ticks <= f64::from(u32::MAX)) {
             return Err(bad(
@@ -374,14 +421,19 @@ fn print_text(r: &Report<'_>) {
         r.design.kd,
         r.kd_per_tick,
         r.design.derivative,
-        if r.design.feedforward.is_some() { "on" } else { "off" }
+        if r.design.feedforward.is_some() {
+            "on"
+        } else {
+            "off"
+        }
     );
     println!(
         "run: {} Hz, {} ticks ({} s), count size {}, supply {}, delay {} ticks",
         c.rate_hz,
         c.ticks,
         r.duration_s,
-        c.count_size.map_or("exact".to_string(), |s| format!("{s} units")),
+        c.count_size
+            .map_or("exact".to_string(), |s| format!("{s} units")),
         if c.supply_volts.is_finite() {
             format!("{} V", c.supply_volts)
         } else {
@@ -407,8 +459,14 @@ fn print_text(r: &Report<'_>) {
         println!("\n[{}]", run.arithmetic);
         println!("  overshoot            {:.4} %", m.overshoot_pct);
         println!("  peak time            {:.4} s", m.peak_time_s);
-        println!("  rise time (10-90 %)  {}", fmt_opt(m.rise_time_s, 1.0, "s"));
-        println!("  settling time        {}", fmt_opt(m.settling_time_s, 1.0, "s"));
+        println!(
+            "  rise time (10-90 %)  {}",
+            fmt_opt(m.rise_time_s, 1.0, "s")
+        );
+        println!(
+            "  settling time        {}",
+            fmt_opt(m.settling_time_s, 1.0, "s")
+        );
         println!("  final error          {:.6} units", m.final_error);
         println!("  max tracking error   {:.6} units", m.max_tracking_error);
         println!("  peak voltage         {:.4} V", m.peak_volts);

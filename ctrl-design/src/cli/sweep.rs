@@ -1,7 +1,7 @@
 //! `ctrl-design sweep`: the simulation over a spread of plant constants, worst case of each
 //! figure and the plant that gave it.
 
-use super::simulate::{Arithmetic, SimArgs, Setup};
+use super::simulate::{Arithmetic, Setup, SimArgs};
 use super::{CliError, Format};
 use ctrl_design::sim::IdealLoop;
 use ctrl_design::sweep::{self, Sampling, Spread, SweepReport, WorstCase};
@@ -14,7 +14,12 @@ pub struct Args {
     #[command(flatten)]
     sim: SimArgs,
     /// Spread of K, T and bias, percent of nominal (0 <= spread < 100).
-    #[arg(long, value_name = "PERCENT", allow_negative_numbers = true, default_value_t = 20.0)]
+    #[arg(
+        long,
+        value_name = "PERCENT",
+        allow_negative_numbers = true,
+        default_value_t = 20.0
+    )]
     spread: f64,
     /// Monte-Carlo runs (1 ..= 10000000).
     #[arg(long, conflicts_with = "grid", default_value_t = 1000)]
@@ -97,7 +102,8 @@ pub fn run(args: Args) -> Result<(), CliError> {
     let bar = if args.quiet || total_ticks < PROGRESS_TICKS {
         ProgressBar::hidden()
     } else {
-        let b = ProgressBar::with_draw_target(Some(plants.len() as u64), ProgressDrawTarget::stderr());
+        let b =
+            ProgressBar::with_draw_target(Some(plants.len() as u64), ProgressDrawTarget::stderr());
         if let Ok(style) = ProgressStyle::with_template("{bar:40} {pos}/{len} runs, {eta} left") {
             b.set_style(style);
         }

@@ -23,8 +23,8 @@
 use super::{Command, Controller, DerivativeForm, LoopDesign, LoopOutput, Measurement, Setpoint};
 use ctrl_core::drive::{Axis, AxisState, Feedback};
 use ctrl_core::encoder::{EncoderState, Encoders};
-use ctrl_core::mix::mix;
 use ctrl_core::feedforward::Feedforward as CoreFeedforward;
+use ctrl_core::mix::mix;
 use ctrl_core::pd::{Derivative, Pd};
 use ctrl_core::profile::Move;
 use ctrl_core::stall::StallGuard;
@@ -169,7 +169,11 @@ fn volts(name: &'static str, x: f64) -> Result<(I16F16, Quantized), QuantizeErro
         Quantized {
             wanted: x,
             held,
-            relative_error: if x == 0.0 { 0.0 } else { ((held - x) / x).abs() },
+            relative_error: if x == 0.0 {
+                0.0
+            } else {
+                ((held - x) / x).abs()
+            },
         },
     ))
 }
@@ -325,7 +329,7 @@ impl FirmwareLoop {
     ) -> Result<Self, QuantizeError> {
         check_units(units)?;
         let (battery, _) = volts("supply_volts", supply_volts)?;
-        if !(supply_volts > 0.0) {
+        if !supply_volts.is_finite() || supply_volts <= 0.0 {
             return Err(QuantizeError {
                 constant: "supply_volts",
                 value: supply_volts,
@@ -351,7 +355,7 @@ impl FirmwareLoop {
         match *command {
             Command::Step { distance } => {
                 let d = (distance / units.count_size).round();
-                if !(d.abs() < 32768.0) {
+                if d.is_nan() || d.abs() >= 32768.0 {
                     return Err(QuantizeError {
                         constant: "distance",
                         value: d,
@@ -395,22 +399,18 @@ impl FirmwareLoop {
         let d = self.encoders.update(&mut self.encoder_state, l, r);
         match self.kind {
             AxisKind::Forward => {
-                let v = self.axis.update(
-                    &mut self.state,
-                    self.encoder_state.forward(),
-                    d.forward(),
-                );
+                let v =
+                    self.axis
+                        .update(&mut self.state, self.encoder_state.forward(), d.forward());
                 let w = mix(v, I16F16::ZERO, self.limit_volts);
                 // left == right here, so one duty serves both wheels.
                 let duty = self.supply.duty(w.left);
                 [duty, duty]
             }
             AxisKind::Rotation => {
-                let v = self.axis.update(
-                    &mut self.state,
-                    self.encoder_state.rotation(),
-                    d.rotation(),
-                );
+                let v =
+                    self.axis
+                        .update(&mut self.state, self.encoder_state.rotation(), d.rotation());
                 let w = mix(I16F16::ZERO, v, self.limit_volts);
                 [self.supply.duty(w.left), self.supply.duty(w.right)]
             }

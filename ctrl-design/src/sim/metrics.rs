@@ -27,7 +27,7 @@ pub struct Metrics {
     pub peak_volts: f64,
     /// Root-mean-square applied voltage over the run, V.
     pub rms_volts: f64,
-    /// Total variation of the applied voltage, sum of |v[k] - v[k-1]| with v[-1] = 0, V:
+    /// Total variation of the applied voltage, `sum of |v[k] - v[k-1]|` with `v[-1] = 0`, V:
     /// the chatter measure (a smooth move gives about twice its peak voltage).
     pub voltage_total_variation: f64,
     /// Ticks in which the commanded voltage was clipped at the supply.
@@ -154,7 +154,9 @@ mod tests {
     #[test]
     fn figures_of_a_hand_made_sequence() {
         let mut m = MetricsAcc::new(-10.0, 0.02);
-        let ys = [0.0, -0.5, -1.0, -5.0, -9.5, -11.0, -10.5, -10.1, -10.0, -10.0];
+        let ys = [
+            0.0, -0.5, -1.0, -5.0, -9.5, -11.0, -10.5, -10.1, -10.0, -10.0,
+        ];
         let vs = [1.0, 2.0, -1.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0];
         for (y, v) in ys.iter().zip(vs) {
             m.sample(*y, -10.0, v, v == 2.0);

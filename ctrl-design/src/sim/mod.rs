@@ -22,7 +22,7 @@ mod plot;
 pub use drive::Drive;
 pub use firmware::{
     quantize_axis, quantize_move, AxisKind, FirmwareLoop, FirmwareUnits, QuantizationReport,
-    Quantized, QuantizeError, QuantizedAxis, MAX_RELATIVE_ERROR,
+    QuantizeError, Quantized, QuantizedAxis, MAX_RELATIVE_ERROR,
 };
 pub use ideal::{DerivativeForm, Feedforward, IdealLoop, LoopDesign, MoveF64};
 pub use metrics::Metrics;
@@ -194,11 +194,17 @@ impl SimConfig {
             self.plant.time_constant_s,
             self.plant.bias_volts,
         )
-        .map_err(|crate::PlantError::OutOfRange { field, value, valid }| SimError {
-            field,
-            value,
-            valid,
-        })?;
+        .map_err(
+            |crate::PlantError::OutOfRange {
+                 field,
+                 value,
+                 valid,
+             }| SimError {
+                field,
+                value,
+                valid,
+            },
+        )?;
         check(
             "rate_hz",
             self.rate_hz,
