@@ -20,7 +20,10 @@ fn main() {
     };
     let out = PathBuf::from(env::var("OUT_DIR").unwrap_or_default());
     if let Err(e) = fs::write(out.join("memory.x"), text) {
-        println!("cargo:warning=cannot write memory.x to {}: {e}", out.display());
+        println!(
+            "cargo:warning=cannot write memory.x to {}: {e}",
+            out.display()
+        );
         std::process::exit(1);
     }
     println!("cargo:rustc-link-search={}", out.display());

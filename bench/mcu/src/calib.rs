@@ -32,6 +32,12 @@ fn calib_loop(_: &mut Bench) {
 
 /// Calibration paths, run first.
 pub static PATHS: &[Path] = &[
-    Path { name: "empty", tick: empty },
-    Path { name: "calib_loop", tick: calib_loop },
+    Path {
+        name: "empty",
+        tick: empty,
+    },
+    Path {
+        name: "calib_loop",
+        tick: calib_loop,
+    },
 ];

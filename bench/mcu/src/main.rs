@@ -146,6 +146,8 @@ fn main() -> ! {
     }
     #[cfg(any(feature = "size-tick", feature = "size-tick-f32"))]
     size::once();
+    #[cfg(feature = "panic-probe")]
+    panic_probe(black_box(3));
     hprintln!("end {}", MARK.load(Ordering::Relaxed));
     debug::exit(debug::EXIT_SUCCESS);
     #[allow(clippy::empty_loop)]
@@ -157,6 +159,15 @@ fn main() -> ! {
 pub fn report_setup_error(what: &str) {
     hprintln!("setup error: {}", what);
     debug::exit(debug::EXIT_FAILURE);
+}
+
+/// Self-test of the panic scan: an index the compiler cannot prove in bounds, so the
+/// build references `core::panicking::panic_bounds_check` from this function.
+#[cfg(feature = "panic-probe")]
+#[inline(never)]
+fn panic_probe(i: usize) {
+    let table = black_box([1u8, 2, 3, 4]);
+    black_box(table[i]);
 }
 
 /// A fault (for example a stack overflow) ends the run with failure instead of spinning,

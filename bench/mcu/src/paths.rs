@@ -274,21 +274,66 @@ fn keep<T>(x: T) -> T {
 
 /// Measured paths, in run order.
 pub static PATHS: &[Path] = &[
-    Path { name: "pd_fixed", tick: pd_fixed },
-    Path { name: "pd_f32", tick: pd_f32 },
-    Path { name: "lead_fixed", tick: lead_fixed },
-    Path { name: "lead_f32", tick: lead_f32 },
-    Path { name: "profile_fixed", tick: profile_fixed },
-    Path { name: "profile_f32", tick: profile_f32 },
-    Path { name: "drive_fixed", tick: drive_fixed },
-    Path { name: "drive_f32", tick: drive_f32 },
-    Path { name: "part_encoders", tick: encoders_fixed },
-    Path { name: "part_feedforward", tick: feedforward_fixed },
-    Path { name: "part_stall", tick: stall_fixed },
-    Path { name: "part_mix", tick: mix_fixed },
-    Path { name: "part_duty", tick: duty_fixed },
-    Path { name: "part_axis_pd", tick: axis_pd_fixed },
-    Path { name: "part_axis_lead", tick: axis_lead_fixed },
+    Path {
+        name: "pd_fixed",
+        tick: pd_fixed,
+    },
+    Path {
+        name: "pd_f32",
+        tick: pd_f32,
+    },
+    Path {
+        name: "lead_fixed",
+        tick: lead_fixed,
+    },
+    Path {
+        name: "lead_f32",
+        tick: lead_f32,
+    },
+    Path {
+        name: "profile_fixed",
+        tick: profile_fixed,
+    },
+    Path {
+        name: "profile_f32",
+        tick: profile_f32,
+    },
+    Path {
+        name: "drive_fixed",
+        tick: drive_fixed,
+    },
+    Path {
+        name: "drive_f32",
+        tick: drive_f32,
+    },
+    Path {
+        name: "part_encoders",
+        tick: encoders_fixed,
+    },
+    Path {
+        name: "part_feedforward",
+        tick: feedforward_fixed,
+    },
+    Path {
+        name: "part_stall",
+        tick: stall_fixed,
+    },
+    Path {
+        name: "part_mix",
+        tick: mix_fixed,
+    },
+    Path {
+        name: "part_duty",
+        tick: duty_fixed,
+    },
+    Path {
+        name: "part_axis_pd",
+        tick: axis_pd_fixed,
+    },
+    Path {
+        name: "part_axis_lead",
+        tick: axis_lead_fixed,
+    },
 ];
 
 /// The f32 baseline of [`Profile::step`]'s maths, kept in the bench because ctrl-core's

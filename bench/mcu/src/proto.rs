@@ -113,7 +113,9 @@ macro_rules! plan {
                     }
                     v
                 };
-                self.pos2 = self.pos2.saturating_add(<$pos>::from(prev) + <$pos>::from(next));
+                self.pos2 = self
+                    .pos2
+                    .saturating_add(<$pos>::from(prev) + <$pos>::from(next));
                 self.accel_out = next.saturating_sub(prev);
                 self.speed = next;
                 (sat_i64((self.pos2 / 2) as i128), self.speed, self.accel_out)
@@ -267,7 +269,9 @@ fn ff_wide(ff: &ctrl_core::feedforward::Feedforward, v: I16F16, a: I16F16) -> I1
     } else {
         I16F16::ZERO
     };
-    mul_wide(ff.kv(), v).saturating_add(mul_wide(ff.ka(), a)).saturating_add(bias)
+    mul_wide(ff.kv(), v)
+        .saturating_add(mul_wide(ff.ka(), a))
+        .saturating_add(bias)
 }
 
 /// ctrl-core's `Feedforward::volts` with the coefficients from memory (not inlined).
@@ -324,7 +328,10 @@ impl LeanDrive {
             rot: PlanSegments::new(ra, rv, rt),
             pd: PdState::new(),
             lead: LeadState::new(),
-            folded: FoldedLeadState { e1: I16F16::ZERO, u1: I16F16::ZERO },
+            folded: FoldedLeadState {
+                e1: I16F16::ZERO,
+                u1: I16F16::ZERO,
+            },
             stall_f: StallState::new(),
             stall_r: StallState::new(),
             supply: SupplyState::new(),
@@ -347,13 +354,19 @@ impl LeanDrive {
         // forward axis
         let (pos, speed, accel) = self.fwd.step();
         let e = narrow_sat(pos.wrapping_sub(self.encoders.forward().to_bits()));
-        let ff = FF_FWD.volts(I16F16::from_bits((speed >> 16) as i32), I16F16::from_bits((accel >> 16) as i32));
+        let ff = FF_FWD.volts(
+            I16F16::from_bits((speed >> 16) as i32),
+            I16F16::from_bits((accel >> 16) as i32),
+        );
         let fv = ff.saturating_add(PD.update(&mut self.pd, e, d.forward()));
         let stall_f = STALL.update(&mut self.stall_f, e);
         // rotation axis
         let (pos, speed, accel) = self.rot.step();
         let e = narrow_sat(pos.wrapping_sub(self.encoders.rotation().to_bits()));
-        let ff = FF_ROT.volts(I16F16::from_bits((speed >> 16) as i32), I16F16::from_bits((accel >> 16) as i32));
+        let ff = FF_ROT.volts(
+            I16F16::from_bits((speed >> 16) as i32),
+            I16F16::from_bits((accel >> 16) as i32),
+        );
         let fb = if FOLD {
             folded_lead(&mut self.folded, e)
         } else {
@@ -363,7 +376,11 @@ impl LeanDrive {
         let stall_r = STALL.update(&mut self.stall_r, e);
         // mix, supply, stall
         let battery = self.supply.battery_volts();
-        let limit = if battery < fx(MAX_VOLTS) { battery } else { fx(MAX_VOLTS) };
+        let limit = if battery < fx(MAX_VOLTS) {
+            battery
+        } else {
+            fx(MAX_VOLTS)
+        };
         let v = mix(fv, rv, limit);
         self.out = if stall_f | stall_r {
             [I16F16::ZERO; 2]
@@ -477,13 +494,40 @@ fn feedforward_mem(b: &mut Bench) {
 
 /// Prototype paths.
 pub static PATHS: &[Path] = &[
-    Path { name: "proto_profile_i128", tick: profile_i128 },
-    Path { name: "proto_profile_i64", tick: profile_i64 },
-    Path { name: "proto_profile_i64_pos", tick: profile_i64_pos },
-    Path { name: "proto_profile_segments", tick: profile_segments },
-    Path { name: "proto_lead_folded", tick: lead_folded },
-    Path { name: "proto_ff_core_mem", tick: feedforward_mem },
-    Path { name: "proto_ff_wide_mem", tick: feedforward_wide },
-    Path { name: "proto_drive_lean", tick: drive_lean },
-    Path { name: "proto_drive_lean_folded", tick: drive_lean_folded },
+    Path {
+        name: "proto_profile_i128",
+        tick: profile_i128,
+    },
+    Path {
+        name: "proto_profile_i64",
+        tick: profile_i64,
+    },
+    Path {
+        name: "proto_profile_i64_pos",
+        tick: profile_i64_pos,
+    },
+    Path {
+        name: "proto_profile_segments",
+        tick: profile_segments,
+    },
+    Path {
+        name: "proto_lead_folded",
+        tick: lead_folded,
+    },
+    Path {
+        name: "proto_ff_core_mem",
+        tick: feedforward_mem,
+    },
+    Path {
+        name: "proto_ff_wide_mem",
+        tick: feedforward_wide,
+    },
+    Path {
+        name: "proto_drive_lean",
+        tick: drive_lean,
+    },
+    Path {
+        name: "proto_drive_lean_folded",
+        tick: drive_lean_folded,
+    },
 ];

@@ -76,10 +76,13 @@ pub const AXIS_FWD: Axis = Axis::new(FF_FWD, Feedback::Pd(PD), STALL);
 pub const AXIS_ROT: Axis = Axis::new(FF_ROT, Feedback::Lead(LEAD), STALL);
 pub const SUPPLY: Supply = Supply::new(fx(LOW_VOLTS));
 
-pub static DRIVE: TwoAxisDrive = TwoAxisDrive::new(ENCODERS, AXIS_FWD, AXIS_ROT, SUPPLY, fx(MAX_VOLTS));
+pub static DRIVE: TwoAxisDrive =
+    TwoAxisDrive::new(ENCODERS, AXIS_FWD, AXIS_ROT, SUPPLY, fx(MAX_VOLTS));
 
-pub const PD_F32: float::Pd = float::Pd::new(KP as f32, KD as f32, Derivative::OnError, MAX_VOLTS as f32);
-pub const LEAD_F32: float::Lead = float::Lead::new(B0 as f32, B1 as f32, A1 as f32, MAX_VOLTS as f32);
+pub const PD_F32: float::Pd =
+    float::Pd::new(KP as f32, KD as f32, Derivative::OnError, MAX_VOLTS as f32);
+pub const LEAD_F32: float::Lead =
+    float::Lead::new(B0 as f32, B1 as f32, A1 as f32, MAX_VOLTS as f32);
 
 pub static DRIVE_F32: float::TwoAxisDrive = float::TwoAxisDrive::new(
     ENCODERS,
@@ -95,4 +98,3 @@ pub static DRIVE_F32: float::TwoAxisDrive = float::TwoAxisDrive::new(
     ),
     MAX_VOLTS as f32,
 );
-

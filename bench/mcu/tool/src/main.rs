@@ -43,8 +43,14 @@ const CORES: &[Core] = &[
 const BUILDS: &[(&str, &[&str])] = &[
     ("paths", &[]),
     ("base", &["--no-default-features"]),
-    ("tick", &["--no-default-features", "--features", "size-tick"]),
-    ("tick-f32", &["--no-default-features", "--features", "size-tick-f32"]),
+    (
+        "tick",
+        &["--no-default-features", "--features", "size-tick"],
+    ),
+    (
+        "tick-f32",
+        &["--no-default-features", "--features", "size-tick-f32"],
+    ),
 ];
 
 /// Longest a QEMU run may take before it is killed.
@@ -78,7 +84,11 @@ fn parse_args() -> Result<Options, String> {
                 if !CORES.iter().any(|k| k.triple == c) {
                     return Err(format!(
                         "--core {c}: unknown; valid: {}",
-                        CORES.iter().map(|k| k.triple).collect::<Vec<_>>().join(", ")
+                        CORES
+                            .iter()
+                            .map(|k| k.triple)
+                            .collect::<Vec<_>>()
+                            .join(", ")
                     ));
                 }
                 o.cores.push(c);
@@ -169,9 +179,17 @@ fn real_main(opts: &Options) -> Result<bool, String> {
     print!("{report}");
     let _ = fs::write(out_dir.join("report.md"), &report);
 
-    let failures = check(&results, &limits);
+    let mut failures = check(&results, &limits);
+    for core in CORES {
+        if results.iter().any(|r| r.triple == core.triple) {
+            failures.extend(self_test(core, &dir, &out_dir)?);
+        }
+    }
     if failures.is_empty() {
-        println!("\nall checks passed (calibration exact, no panic symbols, limits from {})", limits_path.display());
+        println!(
+            "\nall checks passed (calibration exact, no panic symbols, limits from {})",
+            limits_path.display()
+        );
     } else {
         println!("\nFAILED checks:");
         for f in &failures {
@@ -179,6 +197,64 @@ fn real_main(opts: &Options) -> Result<bool, String> {
         }
     }
     Ok(!opts.check || failures.is_empty())
+}
+
+/// Shows that both external checks can fail: the panic scan must find the planted
+/// bounds check (and name its caller), and counting without one instruction per block
+/// must miss the calibration loop's known count.
+fn self_test(core: &Core, dir: &Path, out_dir: &Path) -> Result<Vec<String>, String> {
+    let mut failures = Vec::new();
+    let elf = build(
+        core,
+        dir,
+        out_dir,
+        "panic-probe",
+        &["--no-default-features", "--features", "panic-probe"],
+    )?;
+    let data = fs::read(&elf).map_err(|e| format!("{}: {e}", elf.display()))?;
+    let file = object::File::parse(&*data).map_err(|e| format!("{}: {e}", elf.display()))?;
+    let found = scan_panics(&file);
+    let named = found.iter().any(|(sym, callers)| {
+        sym.contains("panic_bounds_check") && callers.iter().any(|c| c.contains("panic_probe"))
+    });
+    if !named {
+        failures.push(format!(
+            "{}: self-test: the panic scan did not find the planted bounds check in bench_mcu::panic_probe (found: {found:?})",
+            core.triple
+        ));
+    }
+    // Counting with chained multi-instruction blocks must disagree with the known loop.
+    let plain = QemuFlavour {
+        one_insn: Vec::new(),
+        version: String::new(),
+    };
+    let paths = out_dir.join(format!("{}-paths.elf", core.triple));
+    let (n, k, windows, _) = run_qemu(core, &paths, out_dir, &plain, false)?;
+    let r = CoreResult {
+        triple: core.triple,
+        label: core.label,
+        n,
+        k,
+        windows,
+        text: BTreeMap::new(),
+        panics: Vec::new(),
+        tick_functions: Vec::new(),
+        proto_differ: None,
+    };
+    let calib = r.per_tick("calib_loop");
+    if calib == Some((2 * k + 1) as f64) {
+        failures.push(format!(
+            "{}: self-test: counting block executions (not instructions) still gave the exact calibration count; the check could not fail",
+            core.triple
+        ));
+    }
+    eprintln!(
+        "self-test {}: planted panic found and named: {named}; block-count calibration = {:?} (instructions: {})",
+        core.triple,
+        calib,
+        2 * k + 1
+    );
+    Ok(failures)
 }
 
 fn measure_core(
@@ -203,7 +279,7 @@ fn measure_core(
             .map(|s| s.size())
             .ok_or_else(|| format!("{}: no .text section", elf.display()))?;
         text.insert(*name, t);
-        for finding in scan_panics(&file, &data) {
+        for finding in scan_panics(&file) {
             panics.push((format!("{name}: {}", finding.0), finding.1));
         }
     }
@@ -248,9 +324,13 @@ fn build(
     if !status.success() {
         return Err(format!("firmware build {} ({name}) failed", core.triple));
     }
-    let built = target_dir.join(core.triple).join("release").join("bench-mcu");
+    let built = target_dir
+        .join(core.triple)
+        .join("release")
+        .join("bench-mcu");
     let copy = out_dir.join(format!("{}-{name}.elf", core.triple));
-    fs::copy(&built, &copy).map_err(|e| format!("{} -> {}: {e}", built.display(), copy.display()))?;
+    fs::copy(&built, &copy)
+        .map_err(|e| format!("{} -> {}: {e}", built.display(), copy.display()))?;
     Ok(copy)
 }
 
@@ -265,7 +345,9 @@ impl QemuFlavour {
         let out = Command::new("qemu-system-arm")
             .arg("--version")
             .output()
-            .map_err(|e| format!("cannot run qemu-system-arm (apt-get install qemu-system-arm): {e}"))?;
+            .map_err(|e| {
+                format!("cannot run qemu-system-arm (apt-get install qemu-system-arm): {e}")
+            })?;
         let text = String::from_utf8_lossy(&out.stdout).to_string();
         let version = text
             .split_whitespace()
@@ -321,16 +403,24 @@ fn run_qemu(
         .stdin(Stdio::null())
         .stdout(Stdio::piped())
         .stderr(Stdio::piped());
-    eprintln!("running {} under qemu-system-arm {} -machine {} ...", core.triple, qemu.version, core.machine);
+    eprintln!(
+        "running {} under qemu-system-arm {} -machine {} ...",
+        core.triple, qemu.version, core.machine
+    );
     let started = Instant::now();
-    let mut child = cmd.spawn().map_err(|e| format!("cannot start qemu-system-arm: {e}"))?;
+    let mut child = cmd
+        .spawn()
+        .map_err(|e| format!("cannot start qemu-system-arm: {e}"))?;
     let status = loop {
         match child.try_wait() {
             Ok(Some(s)) => break s,
             Ok(None) if started.elapsed() > QEMU_TIMEOUT => {
                 let _ = child.kill();
                 let _ = child.wait();
-                return Err(format!("{}: qemu did not exit within {QEMU_TIMEOUT:?}", core.triple));
+                return Err(format!(
+                    "{}: qemu did not exit within {QEMU_TIMEOUT:?}",
+                    core.triple
+                ));
             }
             Ok(None) => {
                 let size = fs::metadata(&log).map(|m| m.len()).unwrap_or(0);
@@ -348,7 +438,9 @@ fn run_qemu(
             Err(e) => return Err(format!("waiting for qemu: {e}")),
         }
     };
-    let output = child.wait_with_output().map_err(|e| format!("qemu output: {e}"))?;
+    let output = child
+        .wait_with_output()
+        .map_err(|e| format!("qemu output: {e}"))?;
     let stdout = String::from_utf8_lossy(&output.stdout).to_string();
     if !status.success() {
         return Err(format!(
@@ -377,10 +469,18 @@ fn run_qemu(
         } else if let Some(name) = line.strip_prefix("path ") {
             names.push(name.to_string());
         } else if let Some(rest) = line.strip_prefix("proto check: ") {
-            proto_differ = rest.split_whitespace().next().and_then(|v| v.parse::<u64>().ok());
+            proto_differ = rest
+                .split_whitespace()
+                .next()
+                .and_then(|v| v.parse::<u64>().ok());
         }
     }
-    let n = n.ok_or_else(|| format!("{}: no `bench-mcu N=` line in firmware output:\n{stdout}", core.triple))?;
+    let n = n.ok_or_else(|| {
+        format!(
+            "{}: no `bench-mcu N=` line in firmware output:\n{stdout}",
+            core.triple
+        )
+    })?;
     let k = k.ok_or_else(|| format!("{}: no `K=` in firmware output", core.triple))?;
 
     let counts = count_windows(&log, begin, end)?;
@@ -428,7 +528,11 @@ fn count_windows(log: &Path, begin: u64, end: u64) -> Result<Vec<u64>, String> {
             .and_then(|(_, r)| r.split('/').nth(1))
             .and_then(|h| u64::from_str_radix(h, 16).ok());
         let Some(pc) = pc else {
-            return Err(format!("{}: cannot read pc from log line `{}`", log.display(), line.trim_end()));
+            return Err(format!(
+                "{}: cannot read pc from log line `{}`",
+                log.display(),
+                line.trim_end()
+            ));
         };
         if pc == end {
             if let Some(c) = current.take() {
@@ -446,7 +550,10 @@ fn count_windows(log: &Path, begin: u64, end: u64) -> Result<Vec<u64>, String> {
         }
     }
     if current.is_some() {
-        return Err(format!("{}: window not closed at end of log", log.display()));
+        return Err(format!(
+            "{}: window not closed at end of log",
+            log.display()
+        ));
     }
     Ok(counts)
 }
@@ -493,7 +600,7 @@ fn functions(file: &object::File) -> Vec<(u64, u64, String)> {
 /// Returns (panic symbol, functions that call it) for every core panicking function in
 /// the image. Callers are found by decoding every 32-bit Thumb `BL`/`B.W` in `.text` and
 /// every literal-pool word that holds the symbol's address (for `ldr rX, =f; blx rX`).
-fn scan_panics(file: &object::File, _data: &[u8]) -> Vec<(String, Vec<String>)> {
+fn scan_panics(file: &object::File) -> Vec<(String, Vec<String>)> {
     let funcs = functions(file);
     let text = file.section_by_name(".text");
     let (text_addr, text_bytes) = match &text {
@@ -532,7 +639,11 @@ fn scan_panics(file: &object::File, _data: &[u8]) -> Vec<(String, Vec<String>)> 
                 let j2 = (h2 >> 11) & 1;
                 let i1 = !(j1 ^ s_bit) & 1;
                 let i2 = !(j2 ^ s_bit) & 1;
-                let imm = (s_bit << 24) | (i1 << 23) | (i2 << 22) | ((h1 & 0x3ff) << 12) | ((h2 & 0x7ff) << 1);
+                let imm = (s_bit << 24)
+                    | (i1 << 23)
+                    | (i2 << 22)
+                    | ((h1 & 0x3ff) << 12)
+                    | ((h2 & 0x7ff) << 1);
                 let offset = ((imm << 7) as i32) >> 7;
                 let dest = (at as i64 + 4 + offset as i64) as u64;
                 if dest == target {
@@ -573,7 +684,7 @@ fn added_functions(base: &Path, tick: &Path) -> Result<Vec<(String, u64)>, Strin
         .into_iter()
         .filter(|(n, _)| !b.iter().any(|(bn, _)| bn == n))
         .collect();
-    added.sort_by(|x, y| y.1.cmp(&x.1));
+    added.sort_by_key(|x| std::cmp::Reverse(x.1));
     Ok(added)
 }
 
@@ -603,21 +714,27 @@ impl Limits {
             ("ratio", &mut l.ratio),
             ("text", &mut l.text),
         ] {
-            let Some(v) = table.get(section) else { continue };
-            let per_core = v
-                .as_table()
-                .ok_or_else(|| format!("{}: [{section}] must be a table of cores", path.display()))?;
+            let Some(v) = table.get(section) else {
+                continue;
+            };
+            let per_core = v.as_table().ok_or_else(|| {
+                format!("{}: [{section}] must be a table of cores", path.display())
+            })?;
             for (triple, entries) in per_core {
                 if !CORES.iter().any(|c| c.triple == triple) {
                     return Err(format!(
                         "{}: [{section}.{triple}]: unknown core; valid: {}",
                         path.display(),
-                        CORES.iter().map(|c| c.triple).collect::<Vec<_>>().join(", ")
+                        CORES
+                            .iter()
+                            .map(|c| c.triple)
+                            .collect::<Vec<_>>()
+                            .join(", ")
                     ));
                 }
-                let entries = entries
-                    .as_table()
-                    .ok_or_else(|| format!("{}: [{section}.{triple}] must be a table", path.display()))?;
+                let entries = entries.as_table().ok_or_else(|| {
+                    format!("{}: [{section}.{triple}] must be a table", path.display())
+                })?;
                 for (key, val) in entries {
                     let x = val
                         .as_float()
@@ -652,13 +769,20 @@ fn check(results: &[CoreResult], limits: &Limits) -> Vec<String> {
             None => f.push(format!("{}: calibration path missing", r.triple)),
         }
         if let Some(d) = r.proto_differ.filter(|d| *d != 0) {
-            f.push(format!("{}: prototype profiles differ from the i128 transcription on {d} ticks", r.triple));
+            f.push(format!(
+                "{}: prototype profiles differ from the i128 transcription on {d} ticks",
+                r.triple
+            ));
         }
         for (what, callers) in &r.panics {
             f.push(format!(
                 "{}: panic symbol `{what}` present; referenced from: {}",
                 r.triple,
-                if callers.is_empty() { "(no direct caller found)".to_string() } else { callers.join("; ") }
+                if callers.is_empty() {
+                    "(no direct caller found)".to_string()
+                } else {
+                    callers.join("; ")
+                }
             ));
         }
         for (triple, path, max) in &limits.instructions {
@@ -667,8 +791,12 @@ fn check(results: &[CoreResult], limits: &Limits) -> Vec<String> {
             }
             match r.per_tick(path) {
                 Some(x) if x <= *max => {}
-                Some(x) => f.push(format!("{triple}: {path} = {x} instructions/tick > limit {max}")),
-                None => f.push(format!("{triple}: {path}: limited in limits.toml but not measured")),
+                Some(x) => f.push(format!(
+                    "{triple}: {path} = {x} instructions/tick > limit {max}"
+                )),
+                None => f.push(format!(
+                    "{triple}: {path}: limited in limits.toml but not measured"
+                )),
             }
         }
         for (triple, stem, max) in &limits.ratio {
@@ -683,7 +811,9 @@ fn check(results: &[CoreResult], limits: &Limits) -> Vec<String> {
                     "{triple}: {stem} fixed/f32 = {a}/{b} = {:.3} > limit {max}",
                     a / b
                 )),
-                _ => f.push(format!("{triple}: {stem}: ratio limited but {stem}_fixed/{stem}_f32 not measured")),
+                _ => f.push(format!(
+                    "{triple}: {stem}: ratio limited but {stem}_fixed/{stem}_f32 not measured"
+                )),
             }
         }
         for (triple, build, max) in &limits.text {
@@ -718,7 +848,14 @@ fn render(results: &[CoreResult]) -> String {
         "## Instructions per tick (instruction counts under QEMU, not cycles)\n"
     );
     for r in results {
-        let _ = writeln!(s, "- {}: `{}`, N = {}, 2N = {}", r.label, r.triple, r.n, 2 * r.n);
+        let _ = writeln!(
+            s,
+            "- {}: `{}`, N = {}, 2N = {}",
+            r.label,
+            r.triple,
+            r.n,
+            2 * r.n
+        );
     }
     let _ = writeln!(s);
     // Path names in first-seen order.
@@ -767,7 +904,10 @@ fn render(results: &[CoreResult]) -> String {
         .filter(|st| names.contains(&format!("{st}_f32")))
         .collect();
     if !stems.is_empty() {
-        let _ = writeln!(s, "### fixed point against the f32 baseline (fixed / f32)\n");
+        let _ = writeln!(
+            s,
+            "### fixed point against the f32 baseline (fixed / f32)\n"
+        );
         let _ = write!(s, "| path |");
         for r in results {
             let _ = write!(s, " {} |", r.triple);
@@ -781,9 +921,18 @@ fn render(results: &[CoreResult]) -> String {
         for st in &stems {
             let _ = write!(s, "| {st} |");
             for r in results {
-                match (r.per_tick(&format!("{st}_fixed")), r.per_tick(&format!("{st}_f32"))) {
+                match (
+                    r.per_tick(&format!("{st}_fixed")),
+                    r.per_tick(&format!("{st}_f32")),
+                ) {
                     (Some(a), Some(b)) if b > 0.0 => {
-                        let _ = write!(s, " {} / {} = {:.3} |", fmt_count(Some(a)), fmt_count(Some(b)), a / b);
+                        let _ = write!(
+                            s,
+                            " {} / {} = {:.3} |",
+                            fmt_count(Some(a)),
+                            fmt_count(Some(b)),
+                            a / b
+                        );
                     }
                     _ => {
                         let _ = write!(s, " - |");
@@ -797,7 +946,11 @@ fn render(results: &[CoreResult]) -> String {
 
     for r in results {
         if let Some(d) = r.proto_differ {
-            let _ = writeln!(s, "Prototype profiles against the i128 transcription on `{}`: {d} ticks differ.\n", r.triple);
+            let _ = writeln!(
+                s,
+                "Prototype profiles against the i128 transcription on `{}`: {d} ticks differ.\n",
+                r.triple
+            );
         }
     }
     let _ = writeln!(s, "## Code size (`.text` bytes, release build)\n");
@@ -814,7 +967,11 @@ fn render(results: &[CoreResult]) -> String {
     for (b, _) in BUILDS {
         let _ = write!(s, "| {b} |");
         for r in results {
-            let _ = write!(s, " {} |", r.text.get(b).map(|x| x.to_string()).unwrap_or("-".into()));
+            let _ = write!(
+                s,
+                " {} |",
+                r.text.get(b).map(|x| x.to_string()).unwrap_or("-".into())
+            );
         }
         let _ = writeln!(s);
     }
@@ -837,7 +994,11 @@ fn render(results: &[CoreResult]) -> String {
         if r.tick_functions.is_empty() {
             continue;
         }
-        let _ = writeln!(s, "Functions the `tick` build adds on `{}` (bytes):", r.triple);
+        let _ = writeln!(
+            s,
+            "Functions the `tick` build adds on `{}` (bytes):",
+            r.triple
+        );
         for (n, sz) in r.tick_functions.iter().take(12) {
             let _ = writeln!(s, "- {sz} `{n}`");
         }
@@ -855,7 +1016,12 @@ fn render(results: &[CoreResult]) -> String {
             );
         } else {
             for (what, callers) in &r.panics {
-                let _ = writeln!(s, "- `{}`: FOUND `{what}`, referenced from: {}", r.triple, callers.join("; "));
+                let _ = writeln!(
+                    s,
+                    "- `{}`: FOUND `{what}`, referenced from: {}",
+                    r.triple,
+                    callers.join("; ")
+                );
             }
         }
     }
