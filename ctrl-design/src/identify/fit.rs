@@ -7,6 +7,7 @@
 
 use super::log::{Log, SignalKind};
 use super::IdentifyError;
+use rayon::prelude::*;
 
 /// `a > b`, false when either is NaN (so `!exceeds(x, 0.0)` also refuses NaN).
 #[inline]
@@ -564,17 +565,16 @@ struct Pass {
     cost: f64,
 }
 
-/// Index layout: 0 gain, 1 ln T, 2 bias, then per log: w0, and x0 for position logs.
+/// Rows per position chunk: each chunk of a position log gets its own position offset,
+/// eliminated in closed form, so a long log's small drifts (wheel slip, a bumped encoder) do
+/// not accumulate and the fit stays as well conditioned as on a short log. Logs up to this
+/// length are one chunk, i.e. the plain output-error problem with one initial position.
+pub const POSITION_CHUNK_ROWS: usize = 4096;
+
+/// Index layout: 0 gain, 1 ln T, 2 bias, then one initial speed per log.
 fn layout(logs: &[&Log]) -> (Vec<usize>, usize) {
-    let mut offs = Vec::with_capacity(logs.len());
-    let mut p = 3;
-    for l in logs {
-        offs.push(p);
-        p += match l.kind {
-            SignalKind::Position => 2,
-            SignalKind::Speed => 1,
-        };
-    }
+    let offs: Vec<usize> = (0..logs.len()).map(|j| 3 + j).collect();
+    let p = 3 + logs.len();
     (offs, p)
 }
 
@@ -586,99 +586,185 @@ fn params_from(theta: &[f64]) -> ModelParams {
     }
 }
 
-/// One pass over every log: weighted cost, and if `with_jacobian` the normal equations.
-fn oe_pass(logs: &[&Log], weights: &[f64], theta: &[f64], with_jacobian: bool) -> Pass {
-    let (offs, p) = layout(logs);
-    let mut jtj = if with_jacobian {
-        vec![0.0; p * p]
-    } else {
-        Vec::new()
-    };
-    let mut jtr = if with_jacobian {
-        vec![0.0; p]
-    } else {
-        Vec::new()
-    };
-    let mut cost = 0.0;
-    let kk = theta[0];
-    let t = theta[1].exp();
-    let b = theta[2];
-    for (j, log) in logs.iter().enumerate() {
-        let wt = weights[j];
-        let o = offs[j];
-        let w0 = theta[o];
-        let x0 = if log.kind == SignalKind::Position {
-            theta[o + 1]
+/// Sums over one log: residual r and Jacobian row j (4 entries: K, ln T, bias, w0), with the
+/// per-chunk offset projected out for position logs.
+#[derive(Clone, Copy, Default)]
+struct Sums {
+    jj: [f64; 10],
+    jr: [f64; 4],
+    rr: f64,
+}
+
+#[derive(Clone, Copy, Default)]
+struct Chunk {
+    n: f64,
+    j0: [f64; 4],
+    r0: f64,
+    sj: [f64; 4],
+    sr: f64,
+    sums: Sums,
+}
+
+impl Chunk {
+    #[inline]
+    fn add(&mut self, j: &[f64; 4], r: f64, with_j: bool) {
+        if self.n == 0.0 {
+            self.j0 = *j;
+            self.r0 = r;
+        }
+        self.n += 1.0;
+        let r = r - self.r0;
+        self.sr += r;
+        self.sums.rr += r * r;
+        if with_j {
+            let d = [
+                j[0] - self.j0[0],
+                j[1] - self.j0[1],
+                j[2] - self.j0[2],
+                j[3] - self.j0[3],
+            ];
+            let mut idx = 0;
+            for a in 0..4 {
+                self.sj[a] += d[a];
+                self.sums.jr[a] += d[a] * r;
+                for b in a..4 {
+                    self.sums.jj[idx] += d[a] * d[b];
+                    idx += 1;
+                }
+            }
+        }
+    }
+    /// Sums with the chunk mean removed (the offset's least-squares elimination).
+    fn centred(&self) -> Sums {
+        let mut s = self.sums;
+        if self.n > 0.0 {
+            let n = self.n;
+            s.rr -= self.sr * self.sr / n;
+            let mut idx = 0;
+            for a in 0..4 {
+                s.jr[a] -= self.sj[a] * self.sr / n;
+                for b in a..4 {
+                    s.jj[idx] -= self.sj[a] * self.sj[b] / n;
+                    idx += 1;
+                }
+            }
+        }
+        s
+    }
+}
+
+/// Runs one log at `theta`; returns its sums and, if asked, the mean offset of its first
+/// chunk (the fitted initial position for position logs).
+fn log_pass(log: &Log, wt: f64, kk: f64, t: f64, b: f64, w0: f64, with_j: bool) -> (Sums, f64) {
+    let n = log.len();
+    let is_pos = log.kind == SignalKind::Position;
+    let mut dec = Decay::new(t);
+    let (mut x, mut w) = (0.0f64, w0);
+    let mut sw = [0.0, 0.0, 0.0, 1.0];
+    let mut sx = [0.0f64; 4];
+    let mut total = Sums::default();
+    let mut chunk = Chunk::default();
+    let mut first_offset = f64::NAN;
+    let mut first_chunk_sum = 0.0;
+    let mut first_chunk_n = 0.0;
+    for k in 0..n {
+        if is_pos {
+            let r = (log.signal[k] - x) * wt;
+            chunk.add(&[sx[0] * wt, sx[1] * wt, sx[2] * wt, sx[3] * wt], r, with_j);
+            if first_offset.is_nan() {
+                first_chunk_sum += log.signal[k] - x;
+                first_chunk_n += 1.0;
+            }
+            if chunk.n as usize >= POSITION_CHUNK_ROWS || k + 1 == n {
+                let c = chunk.centred();
+                for i in 0..10 {
+                    total.jj[i] += c.jj[i];
+                }
+                for i in 0..4 {
+                    total.jr[i] += c.jr[i];
+                }
+                total.rr += c.rr;
+                chunk = Chunk::default();
+                if first_offset.is_nan() {
+                    first_offset = first_chunk_sum / first_chunk_n;
+                }
+            }
         } else {
-            0.0
-        };
-        let mut dec = Decay::new(t);
-        let (mut x, mut w) = (x0, w0);
-        // Sensitivities of w and x to [K, lnT, b, w0].
-        let mut sw = [0.0, 0.0, 0.0, 1.0];
-        let mut sx = [0.0f64; 4];
-        // Local 6x6 normal matrix: [K, lnT, b, w0, x0, -] accumulated then scattered.
-        let mut a6 = [0.0f64; 21];
-        let mut r6 = [0.0f64; 5];
-        let n = log.len();
-        let is_pos = log.kind == SignalKind::Position;
-        let np = if is_pos { 5 } else { 4 };
-        let mut c_log = 0.0;
-        for k in 0..n {
-            let model = if is_pos { x } else { w };
-            let r = (log.signal[k] - model) * wt;
-            c_log += r * r;
-            if with_jacobian {
-                let jrow: [f64; 5] = if is_pos {
-                    [sx[0] * wt, sx[1] * wt, sx[2] * wt, sx[3] * wt, wt]
-                } else {
-                    [sw[0] * wt, sw[1] * wt, sw[2] * wt, sw[3] * wt, 0.0]
-                };
+            let r = (log.signal[k] - w) * wt;
+            total.rr += r * r;
+            if with_j {
+                let j = [sw[0] * wt, sw[1] * wt, sw[2] * wt, sw[3] * wt];
                 let mut idx = 0;
-                for a in 0..np {
-                    r6[a] += jrow[a] * r;
-                    for bb in a..np {
-                        a6[idx] += jrow[a] * jrow[bb];
+                for a in 0..4 {
+                    total.jr[a] += j[a] * r;
+                    for bb in a..4 {
+                        total.jj[idx] += j[a] * j[bb];
                         idx += 1;
                     }
                 }
             }
-            if k + 1 < n {
-                let dt = log.time_s[k + 1] - log.time_s[k];
-                let aa = dec.factor(dt);
-                let c = t * (1.0 - aa);
-                let v = log.volts[k];
-                let u = effective_volts(v, b);
-                let g = kk * u;
-                let d = w - g;
-                if with_jacobian {
-                    let ub = if v.abs() > b { -v.signum() } else { 0.0 };
-                    let dg = [u, 0.0, kk * ub, 0.0];
-                    let da_dl = aa * dt / t;
-                    let dc_dl = c - aa * dt;
-                    for q in 0..4 {
-                        let (dal, dcl) = if q == 1 { (da_dl, dc_dl) } else { (0.0, 0.0) };
-                        let nsx = sx[q] + dg[q] * (dt - c) + sw[q] * c + d * dcl;
-                        let nsw = dg[q] * (1.0 - aa) + sw[q] * aa + d * dal;
-                        sx[q] = nsx;
-                        sw[q] = nsw;
-                    }
-                }
-                x += g * dt + d * c;
-                w = g + d * aa;
-            }
         }
-        cost += c_log;
+        if k + 1 < n {
+            let dt = log.time_s[k + 1] - log.time_s[k];
+            let aa = dec.factor(dt);
+            let c = t * (1.0 - aa);
+            let v = log.volts[k];
+            let excess = v.abs() - b;
+            let (u, ub) = if excess > 0.0 {
+                (excess * v.signum(), -v.signum())
+            } else {
+                (0.0, 0.0)
+            };
+            let g = kk * u;
+            let d = w - g;
+            if with_j {
+                let one_a = 1.0 - aa;
+                let dtc = dt - c;
+                // gain
+                let (gk, gb) = (u, kk * ub);
+                sx[0] += gk * dtc + sw[0] * c;
+                sw[0] = gk * one_a + sw[0] * aa;
+                // ln T
+                sx[1] += sw[1] * c + d * (c - aa * dt);
+                sw[1] = sw[1] * aa + d * aa * dt / t;
+                // bias
+                sx[2] += gb * dtc + sw[2] * c;
+                sw[2] = gb * one_a + sw[2] * aa;
+                // initial speed
+                sx[3] += sw[3] * c;
+                sw[3] *= aa;
+            }
+            x += g * dt + d * c;
+            w = g + d * aa;
+        }
+    }
+    (total, first_offset)
+}
+
+/// One pass over every log: weighted cost, and if `with_jacobian` the normal equations.
+fn oe_pass(logs: &[&Log], weights: &[f64], theta: &[f64], with_jacobian: bool) -> Pass {
+    let (offs, p) = layout(logs);
+    let mut jtj = vec![0.0; if with_jacobian { p * p } else { 0 }];
+    let mut jtr = vec![0.0; if with_jacobian { p } else { 0 }];
+    let (kk, t, b) = (theta[0], theta[1].exp(), theta[2]);
+    let sums: Vec<Sums> = logs
+        .par_iter()
+        .enumerate()
+        .map(|(j, log)| log_pass(log, weights[j], kk, t, b, theta[offs[j]], with_jacobian).0)
+        .collect();
+    let mut cost = 0.0;
+    for (j, s) in sums.iter().enumerate() {
+        cost += s.rr;
         if with_jacobian {
-            let map = |a: usize| if a < 3 { a } else { o + (a - 3) };
+            let map = |a: usize| if a < 3 { a } else { offs[j] };
             let mut idx = 0;
-            for a in 0..np {
-                jtr[map(a)] += r6[a];
-                for bb in a..np {
+            for a in 0..4 {
+                jtr[map(a)] += s.jr[a];
+                for bb in a..4 {
                     let (ia, ib) = (map(a), map(bb));
-                    jtj[ia * p + ib] += a6[idx];
+                    jtj[ia * p + ib] += s.jj[idx];
                     if ia != ib {
-                        jtj[ib * p + ia] += a6[idx];
+                        jtj[ib * p + ia] += s.jj[idx];
                     }
                     idx += 1;
                 }
@@ -692,6 +778,7 @@ fn oe_pass(logs: &[&Log], weights: &[f64], theta: &[f64], with_jacobian: bool) -
 /// log's initial state that make the simulated signal match the recorded one, by
 /// Levenberg-Marquardt with exact sensitivities. Each log's residuals are divided by its
 /// noise level (from second differences), so logs of position and of speed can be mixed.
+/// Position offsets are eliminated per chunk of [`POSITION_CHUNK_ROWS`] rows.
 pub fn fit_output_error(
     logs: &[&Log],
     start: &ModelParams,
@@ -715,21 +802,10 @@ pub fn fit_output_error(
     theta[0] = start.gain;
     theta[1] = start.time_constant_s.ln().clamp(lt_lo, lt_hi);
     theta[2] = start.bias_volts.clamp(0.0, max_v);
-    for (j, l) in logs.iter().enumerate() {
-        let o = offs[j];
-        if let Some((x0, w0)) = fit_initial_state(l, &params_from(&theta)) {
-            theta[o] = w0;
-            if let Some(x0) = x0 {
-                theta[o + 1] = x0;
-            }
-        } else if l.kind == SignalKind::Position {
-            theta[o + 1] = l.signal[0];
-        }
-    }
     let mut pass = oe_pass(logs, &weights, &theta, true);
-    let mut lambda = 1e-3;
+    let mut lambda = 1e-6;
     let mut iterations = 0;
-    for _ in 0..200 {
+    for _ in 0..100 {
         iterations += 1;
         let mut a = pass.jtj.clone();
         for i in 0..p {
@@ -751,21 +827,25 @@ pub fn fit_output_error(
         }
         cand[1] = cand[1].clamp(lt_lo, lt_hi);
         cand[2] = cand[2].clamp(0.0, max_v);
+        // A step this small changes nothing that matters; below it rounding decides.
+        let small_step = (delta[1].abs() < 1e-9)
+            && (delta[0].abs() <= 1e-9 * cand[0].abs().max(1e-300))
+            && (delta[2].abs() < 1e-9);
         let c_cost = oe_pass(logs, &weights, &cand, false).cost;
         if c_cost.is_finite() && c_cost <= pass.cost {
             let gain = pass.cost - c_cost;
-            let small_step = (delta[1].abs() < 1e-10)
-                && (delta[0].abs() <= 1e-10 * cand[0].abs().max(1e-300))
-                && (delta[2].abs() < 1e-10);
             theta = cand;
-            lambda = (lambda / 4.0).max(1e-12);
-            let done = gain <= 1e-13 * pass.cost || small_step;
-            pass = oe_pass(logs, &weights, &theta, true);
+            lambda = (lambda / 10.0).max(1e-15);
+            let done = gain <= 1e-11 * pass.cost || small_step;
+            pass = oe_pass(logs, &weights, &theta, !done);
             if done {
                 break;
             }
         } else {
-            lambda *= 5.0;
+            if small_step {
+                break;
+            }
+            lambda *= 10.0;
             if lambda > 1e12 {
                 break;
             }
@@ -784,11 +864,20 @@ pub fn fit_output_error(
         .iter()
         .enumerate()
         .map(|(j, l)| {
-            let o = offs[j];
-            (
-                (l.kind == SignalKind::Position).then(|| theta[o + 1]),
-                theta[o],
-            )
+            let w0 = theta[offs[j]];
+            let x0 = (l.kind == SignalKind::Position).then(|| {
+                log_pass(
+                    l,
+                    1.0,
+                    params.gain,
+                    params.time_constant_s,
+                    params.bias_volts,
+                    w0,
+                    false,
+                )
+                .1
+            });
+            (x0, w0)
         })
         .collect();
     Ok(OutputErrorFit {
@@ -886,8 +975,12 @@ pub(crate) fn resolution(signal: &[f64]) -> f64 {
 
 pub(crate) fn median_dt(log: &Log) -> f64 {
     let mut d: Vec<f64> = log.time_s.windows(2).map(|w| w[1] - w[0]).collect();
-    d.sort_by(f64::total_cmp);
-    d.get(d.len() / 2).copied().unwrap_or(1.0)
+    if d.is_empty() {
+        return 1.0;
+    }
+    let mid = d.len() / 2;
+    let (_, m, _) = d.select_nth_unstable_by(mid, f64::total_cmp);
+    *m
 }
 
 /// Half-width (rows) of the difference window used to estimate speed from a position log:
@@ -933,4 +1026,56 @@ pub(crate) fn smoothed_speed(log: &Log, m: usize) -> Vec<f64> {
             }
         })
         .collect()
+}
+
+/// Start for the output-error fit from the constant-voltage stretches of the logs: each
+/// stretch of at least 20 rows (at most 48 of them, spread over the logs) is fitted as a step
+/// from a free initial speed ([`fit_step`]), then gain and bias come from the steady-speed
+/// line of the stretches that moved and the time constant is their median. Returns `None`
+/// when fewer than two voltage magnitudes moved the wheel.
+pub fn segment_estimate(logs: &[&Log]) -> Option<ModelParams> {
+    let mut segs: Vec<(usize, usize, usize)> = Vec::new();
+    for (j, log) in logs.iter().enumerate() {
+        let ch = log.voltage_changes();
+        for (i, &k0) in ch.iter().enumerate() {
+            let end = ch.get(i + 1).copied().unwrap_or(log.len());
+            if end - k0 >= 20 && log.volts[k0] != 0.0 {
+                segs.push((j, k0, end));
+            }
+        }
+    }
+    let stride = segs.len().div_ceil(48).max(1);
+    let fits: Vec<(f64, f64, f64)> = segs
+        .par_iter()
+        .step_by(stride)
+        .filter_map(|&(j, k0, end)| {
+            let l = logs[j];
+            let sub = Log {
+                name: l.name.clone(),
+                time_s: l.time_s[k0 - 1..end].to_vec(),
+                volts: l.volts[k0 - 1..end].to_vec(),
+                kind: l.kind,
+                signal: l.signal[k0 - 1..end].to_vec(),
+                lines: l.lines[k0 - 1..end].to_vec(),
+                columns: l.columns.clone(),
+            };
+            let f = fit_step(&sub).ok()?;
+            (!f.at_search_bound).then_some((f.volts_after, f.steady_speed, f.time_constant_s))
+        })
+        .collect();
+    let peak = fits.iter().fold(0.0f64, |a, f| a.max(f.1.abs()));
+    let moving: Vec<&(f64, f64, f64)> = fits
+        .iter()
+        .filter(|f| f.1.abs() > 0.05 * peak && f.1 * f.0 > 0.0)
+        .collect();
+    let pts: Vec<(f64, f64)> = moving.iter().map(|f| (f.0, f.1)).collect();
+    let line = fit_steady_line(&pts).ok()?;
+    let mut ts: Vec<f64> = moving.iter().map(|f| f.2).collect();
+    ts.sort_by(f64::total_cmp);
+    let t = *ts.get(ts.len() / 2)?;
+    Some(ModelParams {
+        gain: line.gain,
+        time_constant_s: t,
+        bias_volts: line.bias_volts.max(0.0),
+    })
 }

@@ -794,42 +794,52 @@ fn voltage_magnitudes<'a>(logs: impl Iterator<Item = &'a Log>) -> Vec<f64> {
 /// Output-error fit from the equation-error start, with a fallback start when the
 /// regression is unusable; keeps the better of the two.
 fn fit_joint(logs: &[&Log]) -> Result<OutputErrorFit, IdentifyError> {
-    let dt = logs
-        .iter()
-        .map(|l| median_dt(l))
-        .fold(f64::INFINITY, f64::min);
-    let max_v = logs
-        .iter()
-        .flat_map(|l| l.volts.iter())
-        .fold(0.0f64, |a, &b| a.max(b.abs()));
-    let peak = logs
-        .iter()
-        .map(|l| {
-            fit::smoothed_speed(l, smoothing_half_window(l))
-                .iter()
-                .fold(0.0f64, |a, &b| a.max(b.abs()))
-        })
-        .fold(0.0f64, f64::max);
-    let fallback = ModelParams {
-        gain: (peak / max_v.max(1e-9)).max(1e-9),
-        time_constant_s: 20.0 * dt,
-        bias_volts: 0.0,
+    // Crude start from the data's scales: T of 20 samples, no bias, gain from peak speed.
+    let fallback = || {
+        let dt = logs
+            .iter()
+            .map(|l| median_dt(l))
+            .fold(f64::INFINITY, f64::min);
+        let max_v = logs
+            .iter()
+            .flat_map(|l| l.volts.iter())
+            .fold(0.0f64, |a, &b| a.max(b.abs()));
+        let peak = logs
+            .iter()
+            .map(|l| {
+                fit::smoothed_speed(l, smoothing_half_window(l))
+                    .iter()
+                    .fold(0.0f64, |a, &b| a.max(b.abs()))
+            })
+            .fold(0.0f64, f64::max);
+        ModelParams {
+            gain: (peak / max_v.max(1e-9)).max(1e-9),
+            time_constant_s: 20.0 * dt,
+            bias_volts: 0.0,
+        }
     };
     let rows: usize = logs.iter().map(|l| l.len()).sum();
     let poor = |f: &OutputErrorFit| !exceeds(f.params.gain, 0.0) || f.cost > 100.0 * rows as f64;
     let mut best: Option<OutputErrorFit> = None;
     let mut last_err = None;
-    let start = equation_error_estimate(logs);
-    let mut starts: Vec<ModelParams> = start.into_iter().collect();
-    starts.push(fallback);
-    for scale in [0.2, 5.0] {
-        starts.push(ModelParams {
-            time_constant_s: fallback.time_constant_s * scale,
-            ..fallback
-        });
-    }
-    for s in &starts {
-        match fit_output_error(logs, s) {
+    // Starts, tried in turn (each computed only when the ones before it fell short).
+    let scaled = |scale: f64| {
+        let f = fallback();
+        ModelParams {
+            time_constant_s: f.time_constant_s * scale,
+            ..f
+        }
+    };
+    let starts: [&dyn Fn() -> Option<ModelParams>; 5] = [
+        &|| fit::segment_estimate(logs),
+        &|| equation_error_estimate(logs),
+        &|| Some(fallback()),
+        &|| Some(scaled(0.2)),
+        &|| Some(scaled(5.0)),
+    ];
+    for start in starts {
+        let Some(s) = start() else { continue };
+        match fit_output_error(logs, &s) {
             Ok(f) => {
                 let better = match &best {
                     None => true,
