@@ -113,6 +113,62 @@ fn firmware_route_under_qemu_matches_the_host_simulation() {
     assert_eq!(compared, 6);
 }
 
+#[test]
+fn build_script_watches_the_design_and_every_log() {
+    let target = firmware_target_dir("tests");
+    let out = build_firmware(None, &target);
+    assert!(
+        out.status.success(),
+        "the demo firmware does not build:\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    // cargo keeps each build script's stdout in build/<pkg>-<hash>/output.
+    let build = target.join("thumbv7m-none-eabi/release/build");
+    let outputs: Vec<String> = std::fs::read_dir(&build)
+        .expect("build folder")
+        .filter_map(|e| e.ok())
+        .filter(|e| {
+            e.file_name()
+                .to_string_lossy()
+                .starts_with("demo-firmware-")
+        })
+        .filter_map(|e| std::fs::read_to_string(e.path().join("output")).ok())
+        .filter(|s| s.contains("rover.toml"))
+        .collect();
+    assert_eq!(
+        outputs.len(),
+        1,
+        "one build-script output naming rover.toml"
+    );
+    let text = &outputs[0];
+    let watched: Vec<&str> = text
+        .lines()
+        .filter_map(|l| l.strip_prefix("cargo:rerun-if-changed="))
+        .collect();
+    assert!(watched.iter().any(|w| w.ends_with("rover.toml")), "{text}");
+    for axis in ["forward", "rotation"] {
+        let logs = std::fs::read_dir(rover_dir().join("logs").join(axis)).unwrap();
+        let mut n = 0;
+        for log in logs.filter_map(|e| e.ok()) {
+            let name = log.file_name().to_string_lossy().into_owned();
+            if name.starts_with("step_") && name.ends_with(".csv") {
+                n += 1;
+                let want = format!("{axis}/{name}");
+                assert!(
+                    watched.iter().any(|w| w.ends_with(&want)),
+                    "{want} not watched:\n{text}"
+                );
+            }
+        }
+        assert!(n >= 3, "{axis}: only {n} step logs");
+        // The folder itself too, so a new log reruns the script.
+        assert!(
+            watched.iter().any(|w| w.ends_with(&format!("logs/{axis}"))),
+            "{text}"
+        );
+    }
+}
+
 /// The axis report and the distance (axis unit) of a move line.
 fn leg<'a>(e: &'a Emission, m: &MoveReport) -> (&'a AxisReport, f64) {
     let d = m.num("distance");
