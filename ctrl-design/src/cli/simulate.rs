@@ -356,11 +356,16 @@ impl SimArgs {
         let duration = self.duration.unwrap_or_else(|| command.duration_s() + 1.0);
         let ticks = (duration * self.rate).round();
         if !(ticks >= 1.0 && ticks <= f64::from(u32::MAX)) {
-            return Err(bad(
-                "--duration",
-                duration,
-                "at least one tick and at most 2^32 - 1 ticks (seconds)",
-            ));
+            return Err(CliError::bad_input(format!(
+                "--duration = {duration} s at --rate = {} Hz is {ticks:e} ticks{}: valid is \
+                 1 ..= 4294967295 ticks (change --duration or --rate)",
+                self.rate,
+                if self.duration.is_none() {
+                    " (the default: the move's time + 1 s)"
+                } else {
+                    ""
+                }
+            )));
         }
         config.ticks = ticks as u32;
         let design = LoopDesign {
