@@ -56,8 +56,11 @@ impl Plant {
     ///
     /// ```
     /// use ctrl_design::Plant;
-    /// let p = Plant::new(250.0, 0.12, 0.6).unwrap();
-    /// assert_eq!(p.steady_speed(4.6), 1000.0);
+    /// // 250 units/s per volt above a 0.5 V bias: 4.5 V gives 250 * (4.5 - 0.5) = 1000.
+    /// let p = Plant::new(250.0, 0.12, 0.5).unwrap();
+    /// assert_eq!(p.steady_speed(4.5), 1000.0);
+    /// assert_eq!(p.steady_speed(-4.5), -1000.0);
+    /// assert_eq!(p.steady_speed(0.4), 0.0);
     /// assert!(Plant::new(-1.0, 0.1, 0.0).is_err());
     /// ```
     pub fn new(gain: f64, time_constant_s: f64, bias_volts: f64) -> Result<Self, PlantError> {
