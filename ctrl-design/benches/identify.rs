@@ -44,6 +44,15 @@ fn long_log() -> Log {
     simulate("long.csv", &truth, &v, &rec).unwrap()
 }
 
+/// CPU seconds used by this process so far (Linux `/proc/self/stat`; `None` elsewhere). The
+/// bench machine is shared, so wall time can exceed CPU time; both are printed.
+fn cpu_seconds() -> Option<f64> {
+    let s = std::fs::read_to_string("/proc/self/stat").ok()?;
+    let f: Vec<&str> = s.rsplit(')').next()?.split_whitespace().collect();
+    let ticks: f64 = f.get(11)?.parse::<f64>().ok()? + f.get(12)?.parse::<f64>().ok()?;
+    Some(ticks / 100.0)
+}
+
 fn bench(c: &mut Criterion) {
     let log = long_log();
     assert_eq!(log.len(), ROWS);
@@ -53,6 +62,19 @@ fn bench(c: &mut Criterion) {
         "1M-row log: K = {:.4}, T = {:.5}, bias = {:.4}, R2 = {:.5}",
         id.plant.gain, id.plant.time_constant_s, id.plant.bias_volts, id.r_squared
     );
+    if let Some(c0) = cpu_seconds() {
+        let t0 = std::time::Instant::now();
+        for _ in 0..5 {
+            let _ = identify::identify(&logs, &Options::default()).unwrap();
+        }
+        if let Some(c1) = cpu_seconds() {
+            eprintln!(
+                "identify 1M rows: {:.3} s CPU, {:.3} s wall per call (mean of 5)",
+                (c1 - c0) / 5.0,
+                t0.elapsed().as_secs_f64() / 5.0
+            );
+        }
+    }
     let mut g = c.benchmark_group("identify");
     g.sample_size(10);
     g.bench_function("identify_1M_rows_excitation", |b| {

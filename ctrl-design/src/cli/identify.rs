@@ -166,7 +166,7 @@ pub fn text_report(id: &Identification) -> String {
             .map(|n| n.to_string_lossy().to_string())
             .unwrap_or_else(|| l.name.clone());
         s += &format!(
-            "{:<32} {:>8} {:>8} {:>12} {:>9} {:>12.4} {:>9.5}\n",
+            "{:<32} {:>8} {:>8} {:>12} {:>9} {:>12} {:>9}\n",
             name,
             l.rows,
             opt(l.step_volts, 2),
@@ -176,8 +176,8 @@ pub fn text_report(id: &Identification) -> String {
                 "no motion".into()
             },
             opt(l.time_constant_s, 5),
-            l.residual_rms,
-            l.r_squared
+            opt(Some(l.residual_rms), 4),
+            opt(Some(l.r_squared), 5)
         );
     }
     s += &format!("(steady in {u}/s, resid = speed residual RMS in {u}/s)\n");
