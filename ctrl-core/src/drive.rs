@@ -34,8 +34,9 @@ pub enum Feedback {
 /// One axis (forward or rotation): feedforward, feedback and stall guard settings.
 ///
 /// Per tick ([`Axis::update`]): the profile steps; the tracking error is
-/// `setpoint position - measured position` (both [`I32F32`] counts, subtracted saturating,
-/// then narrowed with saturation to [`I16F16`]); the output is
+/// `setpoint position - measured position` (both [`I32F32`] counts, subtracted wrapping like
+/// the encoder positions, so exact while positions stay within ±2^30 counts, then narrowed
+/// with saturation to [`I16F16`]); the output is
 /// `feedforward(setpoint speed, setpoint accel) + feedback(error)`, saturating.
 ///
 /// ```
@@ -204,7 +205,7 @@ impl AxisState {
     pub fn clear_fault(&mut self, measured: I32F32) {
         self.stall.clear();
         self.profile.hold();
-        self.offset = measured.saturating_sub(self.profile.setpoint().position);
+        self.offset = measured.wrapping_sub(self.profile.setpoint().position);
         self.pd = PdState::new();
         self.lead = LeadState::new();
     }
@@ -293,8 +294,9 @@ impl Axis {
         measured_speed: I16F16,
     ) -> I16F16 {
         let sp = state.profile.step();
-        let here = measured.saturating_sub(state.offset);
-        let error = narrow(sp.position.saturating_sub(here));
+        // Wrapping, like the encoder positions: exact while |positions| < 2^30 counts.
+        let here = measured.wrapping_sub(state.offset);
+        let error = narrow(sp.position.wrapping_sub(here));
         let speed = narrow(sp.speed);
         let ff = self.feedforward.volts(speed, narrow(sp.accel));
         let fb = match &self.feedback {
@@ -393,7 +395,10 @@ pub struct DriveState {
     forward: AxisState,
     rotation: AxisState,
     supply: SupplyState,
-    sample: DriveSample,
+    tick: u32,
+    volts: WheelVolts,
+    duty: [I16F16; 2],
+    stalled: bool,
 }
 
 impl Default for DriveState {
@@ -416,18 +421,13 @@ impl DriveState {
             forward: AxisState::new(),
             rotation: AxisState::new(),
             supply: SupplyState::new(),
-            sample: DriveSample {
-                tick: 0,
-                forward: AxisState::new().sample,
-                rotation: AxisState::new().sample,
-                volts: WheelVolts {
-                    left: I16F16::ZERO,
-                    right: I16F16::ZERO,
-                },
-                duty: [I16F16::ZERO; 2],
-                stalled: false,
-                low_supply: true,
+            tick: 0,
+            volts: WheelVolts {
+                left: I16F16::ZERO,
+                right: I16F16::ZERO,
             },
+            duty: [I16F16::ZERO; 2],
+            stalled: false,
         }
     }
 
@@ -528,7 +528,15 @@ impl DriveState {
     /// assert!(ring.push(st.sample()));
     /// ```
     pub const fn sample(&self) -> DriveSample {
-        self.sample
+        DriveSample {
+            tick: self.tick,
+            forward: self.forward.sample,
+            rotation: self.rotation.sample,
+            volts: self.volts,
+            duty: self.duty,
+            stalled: self.stalled,
+            low_supply: self.supply.is_low(),
+        }
     }
 }
 
@@ -671,15 +679,10 @@ impl TwoAxisDrive {
                 state.supply.duty(volts.right),
             ]
         };
-        state.sample = DriveSample {
-            tick: state.sample.tick.wrapping_add(1),
-            forward: state.forward.sample,
-            rotation: state.rotation.sample,
-            volts,
-            duty,
-            stalled,
-            low_supply: state.supply.is_low(),
-        };
+        state.tick = state.tick.wrapping_add(1);
+        state.volts = volts;
+        state.duty = duty;
+        state.stalled = stalled;
         duty
     }
 }

@@ -10,6 +10,7 @@
 //! * PI (no clamp active): the integral gains at most 0.5 LSB of error per tick and is never
 //!   damped, so after tick `n` (1-based) `|I - I_f64| <= 0.5 n` and
 //!   `|u - u_f64| <= 0.5 (n + 1)` LSB.
+//!
 //! The input ranges below are chosen so that no product or sum reaches the `I16F16` range
 //! (|coefficient| <= 128, |error| <= 60 counts, clamp <= 1000 V), which the bounds assume.
 
