@@ -175,14 +175,15 @@ fn real_main(opts: &Options) -> Result<bool, String> {
         results.push(measure_core(core, &dir, &out_dir, &qemu, opts.keep_logs)?);
     }
 
-    let report = render(&results);
+    let mut report = render(&results);
+    report.push_str(&provenance(&dir, &qemu));
     print!("{report}");
     let _ = fs::write(out_dir.join("report.md"), &report);
 
     let mut failures = check(&results, &limits);
     for core in CORES {
         if results.iter().any(|r| r.triple == core.triple) {
-            failures.extend(self_test(core, &dir, &out_dir)?);
+            failures.extend(self_test(core, &dir, &out_dir, &qemu)?);
         }
     }
     if failures.is_empty() {
@@ -202,7 +203,12 @@ fn real_main(opts: &Options) -> Result<bool, String> {
 /// Shows that both external checks can fail: the panic scan must find the planted
 /// bounds check (and name its caller), and counting without one instruction per block
 /// must miss the calibration loop's known count.
-fn self_test(core: &Core, dir: &Path, out_dir: &Path) -> Result<Vec<String>, String> {
+fn self_test(
+    core: &Core,
+    dir: &Path,
+    out_dir: &Path,
+    qemu: &QemuFlavour,
+) -> Result<Vec<String>, String> {
     let mut failures = Vec::new();
     let elf = build(
         core,
@@ -226,7 +232,7 @@ fn self_test(core: &Core, dir: &Path, out_dir: &Path) -> Result<Vec<String>, Str
     // Counting with chained multi-instruction blocks must disagree with the known loop.
     let plain = QemuFlavour {
         one_insn: Vec::new(),
-        version: String::new(),
+        version: format!("{} (self-test: blocks, not instructions)", qemu.version),
     };
     let paths = out_dir.join(format!("{}-paths.elf", core.triple));
     let (n, k, windows, _) = run_qemu(core, &paths, out_dir, &plain, false)?;
@@ -255,6 +261,41 @@ fn self_test(core: &Core, dir: &Path, out_dir: &Path) -> Result<Vec<String>, Str
         2 * k + 1
     );
     Ok(failures)
+}
+
+/// Where the figures came from: commit, whether ctrl-core or the bench had local changes,
+/// QEMU and rustc versions.
+fn provenance(dir: &Path, qemu: &QemuFlavour) -> String {
+    let git = |args: &[&str]| -> Option<String> {
+        let out = Command::new("git")
+            .current_dir(dir)
+            .args(args)
+            .output()
+            .ok()?;
+        out.status
+            .success()
+            .then(|| String::from_utf8_lossy(&out.stdout).trim().to_string())
+    };
+    let commit = git(&["rev-parse", "--short", "HEAD"]).unwrap_or_else(|| "unknown".into());
+    let dirty = git(&["status", "--porcelain", "--", "../../ctrl-core", "."])
+        .map(|s| {
+            if s.is_empty() {
+                "clean".to_string()
+            } else {
+                format!("local changes:\n{s}")
+            }
+        })
+        .unwrap_or_else(|| "unknown".into());
+    let rustc = Command::new("rustc")
+        .arg("--version")
+        .output()
+        .ok()
+        .map(|o| String::from_utf8_lossy(&o.stdout).trim().to_string())
+        .unwrap_or_else(|| "unknown".into());
+    format!(
+        "\n## Provenance\n\n- commit {commit}; ctrl-core and bench/mcu: {dirty}\n- {rustc}; qemu-system-arm {}\n",
+        qemu.version
+    )
 }
 
 fn measure_core(
