@@ -622,13 +622,17 @@ impl PiDesign {
 
 /// -3 dB bandwidth of the PI speed loop with poles `s^2 + 2 zeta wn s + wn^2`:
 /// `T(s) = (b1 s + wn^2) / (s^2 + a1 s + wn^2)`, `a1 = 2 zeta wn`, `b1 = a1 - 1/T`;
-/// `|T(jw)|^2 = 1/2` is a quadratic in `w^2`.
+/// `|T(jw)|^2 = g^2` with `g = 10^(-3/20)` is a quadratic in `x = w^2`:
+/// `g^2 x^2 + (g^2 a1^2 - 2 g^2 b0 - b1^2) x + (g^2 - 1) b0^2 = 0`.
 fn pi_bandwidth(zeta: f64, wn: f64, t: f64) -> f64 {
+    let g2 = analysis::BANDWIDTH_DROP * analysis::BANDWIDTH_DROP;
     let a1 = 2.0 * zeta * wn;
     let b1 = a1 - 1.0 / t;
     let b0 = wn * wn;
-    let bq = a1 * a1 - 2.0 * b0 - 2.0 * b1 * b1;
-    let x = 0.5 * (-bq + (bq * bq + 4.0 * b0 * b0).sqrt());
+    let qa = g2;
+    let qb = g2 * a1 * a1 - 2.0 * g2 * b0 - b1 * b1;
+    let qc = (g2 - 1.0) * b0 * b0;
+    let x = (-qb + (qb * qb - 4.0 * qa * qc).sqrt()) / (2.0 * qa);
     x.sqrt()
 }
 

@@ -117,7 +117,8 @@ pub struct LoopFigures {
     pub phase_margin_deg: Option<f64>,
     /// Frequency of the phase-margin reading (loop gain 1), rad/s.
     pub gain_crossover_rad_s: Option<f64>,
-    /// Closed-loop -3 dB bandwidth of the reference-to-output response, rad/s.
+    /// Closed-loop bandwidth of the reference-to-output response: the first frequency
+    /// where the gain is 3 dB below DC ([`BANDWIDTH_DROP`]), rad/s.
     pub bandwidth_rad_s: Option<f64>,
     /// Closed-loop poles (in `s` or in `z`).
     pub poles: Vec<Complex>,
@@ -267,12 +268,16 @@ pub fn zoh_plant(plant: &Plant, output: PlantOutput, rate_hz: f64) -> (Poly, Pol
     }
 }
 
+/// Gain drop that defines the closed-loop bandwidth: -3 dB exactly, `10^(-3/20)` =
+/// 0.7079 of the DC gain (python-control's `bandwidth` uses the same).
+pub const BANDWIDTH_DROP: f64 = 0.707_945_784_384_137_9;
+
 fn bandwidth(eval: impl Fn(f64) -> f64, lo: f64, hi: f64) -> Option<f64> {
     let dc = eval(lo * 1e-3);
     if !(dc.is_finite() && dc > 0.0) {
         return None;
     }
-    let target = dc / std::f64::consts::SQRT_2;
+    let target = dc * BANDWIDTH_DROP;
     let n = 4000;
     let r = (hi / lo).ln() / n as f64;
     let mut prev = lo;
