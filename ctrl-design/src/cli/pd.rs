@@ -170,6 +170,9 @@ fn fmt_opt(v: Option<f64>) -> String {
     }
 }
 
+/// Reads one figure of a block.
+type Getter = fn(&LoopFigures) -> Option<f64>;
+
 /// A readable table of the response blocks.
 pub(crate) fn report_table(r: &ResponseReport) -> String {
     let mut cols: Vec<(&str, &LoopFigures)> = vec![("continuous", &r.continuous)];
@@ -179,7 +182,7 @@ pub(crate) fn report_table(r: &ResponseReport) -> String {
     if let Some(d) = &r.discrete_delayed {
         cols.push(("delayed", d));
     }
-    let rows: [(&str, fn(&LoopFigures) -> Option<f64>); 10] = [
+    let rows: [(&str, Getter); 10] = [
         ("overshoot %", |f| f.overshoot_pct),
         ("peak time s", |f| f.peak_time_s),
         ("rise time 10-90 % s", |f| f.rise_time_s),
