@@ -2,10 +2,11 @@
 //! Tustin coefficients (pre-warped at the crossover) and the response report.
 
 use super::pd::{
-    band_from, design_error, plant_from, positive, print_json, report_table, report_warnings,
+    band_from, design_error, emit, plant_from, positive, print_json, report_table, report_warnings,
 };
 use super::{CliError, Format};
 use ctrl_design::{analysis, tune};
+use std::fmt::Write as _;
 
 /// Arguments of `ctrl-design lead`.
 #[derive(Debug, clap::Args)]
@@ -85,32 +86,37 @@ pub fn run(args: Args) -> Result<(), CliError> {
             print_json(&serde_json::Value::Object(out))
         }
         Format::Text => {
-            println!(
+            let mut buf = String::new();
+            let _ = writeln!(
+                buf,
                 "Lead position loop: crossover {} rad/s, phase margin {} deg",
                 d.crossover_rad_s, d.phase_margin_deg
             );
-            println!(
+            let _ = writeln!(
+                buf,
                 "  plant phase at crossover {:.3} deg, lead needed {:.3} deg (one-stage limit {} deg)",
                 d.plant_phase_deg,
                 d.lead_deg,
                 tune::MAX_LEAD_DEG
             );
-            println!(
+            let _ = writeln!(
+                buf,
                 "  C(s) = kc (t1 s + 1) / (alpha t1 s + 1): kc {:.6} V/unit, alpha {:.6}, t1 {:.6} s",
                 d.kc, d.alpha, d.t1
             );
             if let Some(c) = &coeffs {
-                println!(
+                let _ = writeln!(
+                buf,
                     "  at {} Hz (Tustin, pre-warped at {} rad/s): u[k] = {:.8} e[k] + {:.8} e[k-1] - ({:.8}) u[k-1]",
                     c.rate_hz, d.crossover_rad_s, c.b0, c.b1, c.a1
                 );
             }
-            println!();
-            print!("{}", report_table(&rep));
+            let _ = writeln!(buf);
+            let _ = write!(buf, "{}", report_table(&rep));
             for w in &warnings {
-                println!("warning: {w}");
+                let _ = writeln!(buf, "warning: {w}");
             }
-            Ok(())
+            emit(&buf)
         }
     }
 }

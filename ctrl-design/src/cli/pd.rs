@@ -6,6 +6,7 @@ use super::{CliError, Format};
 use ctrl_design::analysis::{self, DerivativeOn, LoopFigures, ResponseReport, SettlingBand};
 use ctrl_design::tune::{self, DesignError};
 use ctrl_design::Plant;
+use std::fmt::Write as _;
 
 /// Arguments of `ctrl-design pd`.
 #[derive(Debug, clap::Args)]
@@ -218,12 +219,22 @@ pub(crate) fn report_table(r: &ResponseReport) -> String {
     s
 }
 
+/// Writes `s` to stdout; a closed pipe (`| head`) is not an error.
+pub(crate) fn emit(s: &str) -> Result<(), CliError> {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    match out.write_all(s.as_bytes()).and_then(|_| out.flush()) {
+        Ok(()) => Ok(()),
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        Err(e) => Err(CliError::failure(format!("cannot write to stdout: {e}"))),
+    }
+}
+
 /// Prints one JSON object.
 pub(crate) fn print_json(v: &serde_json::Value) -> Result<(), CliError> {
     let s = serde_json::to_string_pretty(v)
         .map_err(|e| CliError::failure(format!("cannot write JSON: {e}")))?;
-    println!("{s}");
-    Ok(())
+    emit(&(s + "\n"))
 }
 
 fn to_value<T: serde::Serialize>(v: &T) -> serde_json::Value {
@@ -403,27 +414,30 @@ pub fn run(args: Args) -> Result<(), CliError> {
     match args.format {
         Format::Json => print_json(&serde_json::Value::Object(out)),
         Format::Text => {
-            print!("{text}");
-            println!(
+            let mut buf = String::new();
+            let _ = write!(buf, "{text}");
+            let _ = writeln!(
+                buf,
                 "\nResponse (derivative on {}):",
                 match derivative {
                     DerivativeOn::Error => "error, with the PD zero",
                     DerivativeOn::Measurement => "measurement, no zero",
                 }
             );
-            print!("{}", report_table(main));
-            println!(
+            let _ = write!(buf, "{}", report_table(main));
+            let _ = writeln!(
+                buf,
                 "\nOther form (derivative on {}):",
                 match derivative {
                     DerivativeOn::Error => "measurement",
                     DerivativeOn::Measurement => "error",
                 }
             );
-            print!("{}", report_table(other));
+            let _ = write!(buf, "{}", report_table(other));
             for w in &warnings {
-                println!("warning: {w}");
+                let _ = writeln!(buf, "warning: {w}");
             }
-            Ok(())
+            emit(&buf)
         }
     }
 }

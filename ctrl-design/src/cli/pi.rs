@@ -1,10 +1,11 @@
 //! `ctrl-design pi`: PI speed loop from closed-loop bandwidth and damping.
 
 use super::pd::{
-    band_from, design_error, plant_from, positive, print_json, report_table, report_warnings,
+    band_from, design_error, emit, plant_from, positive, print_json, report_table, report_warnings,
 };
 use super::{CliError, Format};
 use ctrl_design::{analysis, tune};
+use std::fmt::Write as _;
 
 /// Arguments of `ctrl-design pi`.
 #[derive(Debug, clap::Args)]
@@ -74,23 +75,26 @@ pub fn run(args: Args) -> Result<(), CliError> {
             print_json(&serde_json::Value::Object(out))
         }
         Format::Text => {
-            println!(
+            let mut buf = String::new();
+            let _ = writeln!(
+                buf,
                 "PI speed loop: bandwidth {} rad/s, damping {}",
                 d.bandwidth_rad_s, d.damping
             );
-            println!(
+            let _ = writeln!(
+                buf,
                 "  kp {:.6} V/(unit/s), ki {:.6} V/(unit/s)/s, natural frequency {:.4} rad/s",
                 d.kp, d.ki, d.natural_frequency
             );
             if let Some(r) = args.rate {
-                println!("  ki per tick {:.8} at {r} Hz", d.ki_per_tick(r));
+                let _ = writeln!(buf, "  ki per tick {:.8} at {r} Hz", d.ki_per_tick(r));
             }
-            println!();
-            print!("{}", report_table(&rep));
+            let _ = writeln!(buf);
+            let _ = write!(buf, "{}", report_table(&rep));
             for w in &warnings {
-                println!("warning: {w}");
+                let _ = writeln!(buf, "warning: {w}");
             }
-            Ok(())
+            emit(&buf)
         }
     }
 }

@@ -1,8 +1,9 @@
 //! `ctrl-design profile`: shape and timing of one move (trapezoid or triangle).
 
-use super::pd::{design_error, plant_from, positive, print_json};
+use super::pd::{design_error, emit, plant_from, positive, print_json};
 use super::{CliError, Format};
 use ctrl_design::tune;
+use std::fmt::Write as _;
 
 /// Arguments of `ctrl-design profile`.
 #[derive(Debug, clap::Args)]
@@ -73,29 +74,33 @@ pub fn run(args: Args) -> Result<(), CliError> {
             print_json(&v)
         }
         Format::Text => {
-            println!(
+            let mut buf = String::new();
+            let _ = writeln!(
+                buf,
                 "move of {} units, cruise {} units/s, accel {} units/s^2, from {} to {} units/s",
                 args.distance, args.cruise_speed, args.accel, args.start_speed, args.end_speed
             );
-            println!(
+            let _ = writeln!(
+                buf,
                 "  shape          {}",
                 match p.shape {
                     tune::Shape::Trapezoid => "trapezoid",
                     tune::Shape::Triangle => "triangle",
                 }
             );
-            println!("  peak speed     {:.6} units/s", p.peak_speed);
-            println!("  time to peak   {:.6} s", p.time_to_peak_s);
-            println!("  cruise time    {:.6} s", p.cruise_time_s);
-            println!("  decel time     {:.6} s", p.decel_time_s);
-            println!("  total time     {:.6} s", p.total_time_s);
+            let _ = writeln!(buf, "  peak speed     {:.6} units/s", p.peak_speed);
+            let _ = writeln!(buf, "  time to peak   {:.6} s", p.time_to_peak_s);
+            let _ = writeln!(buf, "  cruise time    {:.6} s", p.cruise_time_s);
+            let _ = writeln!(buf, "  decel time     {:.6} s", p.decel_time_s);
+            let _ = writeln!(buf, "  total time     {:.6} s", p.total_time_s);
             if let Some(mv) = mv {
-                println!(
+                let _ = writeln!(
+                    buf,
                     "  peak voltage   {:.4} V of {} V ({:.4} V left for feedback)",
                     mv.peak_volts, mv.supply_min_volts, mv.headroom_volts
                 );
             }
-            Ok(())
+            emit(&buf)
         }
     }
 }
