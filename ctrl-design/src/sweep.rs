@@ -242,6 +242,8 @@ pub struct SweepReport {
     pub ticks: u64,
     /// Runs that had not settled at their last tick.
     pub unsettled_runs: usize,
+    /// Runs in which the loop's stall guard tripped.
+    pub stalled_runs: usize,
     /// Worst case of each figure; `None` for an empty sweep.
     pub worst: Option<Worst>,
 }
@@ -250,6 +252,7 @@ pub struct SweepReport {
 struct Partial {
     runs: usize,
     unsettled: usize,
+    stalled: usize,
     worst: Option<Worst>,
 }
 
@@ -257,12 +260,14 @@ impl Partial {
     const EMPTY: Partial = Partial {
         runs: 0,
         unsettled: 0,
+        stalled: 0,
         worst: None,
     };
     fn merge(self, o: Partial) -> Partial {
         Partial {
             runs: self.runs + o.runs,
             unsettled: self.unsettled + o.unsettled,
+            stalled: self.stalled + o.stalled,
             worst: match (self.worst, o.worst) {
                 (Some(a), Some(b)) => Some(a.merge(b)),
                 (a, None) => a,
@@ -306,6 +311,7 @@ where
                 part = part.merge(Partial {
                     runs: 1,
                     unsettled: usize::from(m.settling_time_s.is_none()),
+                    stalled: usize::from(m.stall_tick.is_some()),
                     worst: Some(Worst::of(&m, run, *plant)),
                 });
             }
@@ -317,6 +323,7 @@ where
         runs: total.runs,
         ticks: total.runs as u64 * u64::from(base.ticks),
         unsettled_runs: total.unsettled,
+        stalled_runs: total.stalled,
         worst: total.worst,
     }
 }

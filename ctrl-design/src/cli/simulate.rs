@@ -4,8 +4,9 @@
 use super::{CliError, Format};
 use ctrl_design::analysis::SettlingBand;
 use ctrl_design::sim::{
-    self, AxisKind, Command, DerivativeForm, Disturbance, Feedforward, FirmwareLoop, FirmwareUnits,
-    IdealLoop, LoopDesign, Metrics, QuantizationReport, SimConfig, SimError, Trace,
+    self, AxisDesign, AxisKind, AxisQuantization, Command, DerivativeForm, Disturbance,
+    Feedforward, FirmwareLoop, FirmwareUnits, IdealLoop, LeadLoopDesign, LoopDesign, Metrics,
+    SimConfig, SimError, Trace,
 };
 use ctrl_design::tune;
 use ctrl_design::Plant;
@@ -60,8 +61,53 @@ pub struct SimArgs {
     pub bias: f64,
     /// Proportional gain, V per unit of position error (> 0); with --kd, instead of
     /// --damping/--settling-time.
-    #[arg(long, allow_negative_numbers = true, requires = "kd", conflicts_with_all = ["damping", "settling_time"])]
+    #[arg(long, allow_negative_numbers = true, requires = "kd", conflicts_with_all = ["damping", "settling_time", "crossover", "lead_b0"])]
     pub kp: Option<f64>,
+    /// Phase-lead loop instead of the PD: crossover frequency, rad/s (> 0), with
+    /// --phase-margin (tune::design_lead, discretised by Tustin pre-warped at the crossover
+    /// for --rate).
+    #[arg(long, allow_negative_numbers = true, value_name = "RAD_S", requires = "phase_margin", conflicts_with_all = ["damping", "settling_time", "lead_b0"])]
+    pub crossover: Option<f64>,
+    /// Phase margin for the lead design, degrees (0 < margin < 90).
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "DEG",
+        requires = "crossover"
+    )]
+    pub phase_margin: Option<f64>,
+    /// Phase-lead loop with explicit coefficients `u[k] = b0 e[k] + b1 e[k-1] - a1 u[k-1]`:
+    /// b0, V per unit (finite, non-zero); needs --lead-b1 and --lead-a1.
+    #[arg(long, allow_negative_numbers = true, value_name = "V_PER_UNIT", requires_all = ["lead_b1", "lead_a1"], conflicts_with_all = ["damping", "settling_time"])]
+    pub lead_b0: Option<f64>,
+    /// Lead coefficient b1, V per unit (finite).
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "V_PER_UNIT",
+        requires = "lead_b0"
+    )]
+    pub lead_b1: Option<f64>,
+    /// Lead coefficient a1, dimensionless (|a1| < 1).
+    #[arg(long, allow_negative_numbers = true, requires = "lead_b0")]
+    pub lead_a1: Option<f64>,
+    /// Stall guard of the fixed-point loop: trips when |tracking error| exceeds this many
+    /// units (> 0) for --stall-time; the duties are then 0 for the rest of the run.
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "UNITS",
+        requires = "stall_time"
+    )]
+    pub stall_limit: Option<f64>,
+    /// How long the error must stay beyond --stall-limit, s (1 ..= 65535 ticks).
+    #[arg(
+        long,
+        allow_negative_numbers = true,
+        value_name = "S",
+        requires = "stall_limit"
+    )]
+    pub stall_time: Option<f64>,
     /// Derivative gain, V per unit/s (>= 0).
     #[arg(long, allow_negative_numbers = true, requires = "kp")]
     pub kd: Option<f64>,
@@ -174,9 +220,11 @@ pub struct Setup {
     /// The run.
     pub config: SimConfig,
     /// The loop, designed for `config.plant`.
-    pub design: LoopDesign,
+    pub design: AxisDesign,
     /// The axis the firmware loop runs on.
     pub axis: AxisKind,
+    /// Stall guard of the fixed-point loop (limit, units; time, s), if any.
+    pub stall: Option<(f64, f64)>,
 }
 
 impl Setup {
@@ -206,18 +254,37 @@ impl Setup {
         }
     }
 
-    /// The fixed-point loop and its quantization report.
-    pub fn firmware_loop(&self) -> Result<(FirmwareLoop, QuantizationReport), CliError> {
+    /// The fixed-point loop (with the stall guard, if any) and its quantization report.
+    pub fn firmware_loop(&self) -> Result<(FirmwareLoop, AxisQuantization), CliError> {
         let units = self.units()?;
         let supply = self.supply()?;
-        FirmwareLoop::from_design(
+        let (mut lp, report) = FirmwareLoop::from_axis_design(
             &self.design,
             self.axis,
             &units,
             supply,
             &self.config.command,
         )
-        .map_err(|e| CliError::bad_input(format!("the design cannot run in fixed point: {e}")))
+        .map_err(|e| CliError::bad_input(format!("the design cannot run in fixed point: {e}")))?;
+        if let Some((limit, time_s)) = self.stall {
+            let guard = sim::stall_guard(limit, time_s, &units).map_err(|e| {
+                CliError::bad_input(format!(
+                    "--stall-limit / --stall-time cannot be held by the firmware guard: {e}"
+                ))
+            })?;
+            lp.set_stall_guard(guard);
+        }
+        Ok((lp, report))
+    }
+
+    /// The `f64` loop; the lead form's output is limited to the supply like the firmware's.
+    pub fn ideal_loop(&self) -> IdealLoop {
+        let mut lp =
+            IdealLoop::with_design(&self.design, &self.config.command, self.config.rate_hz);
+        if self.config.supply_volts.is_finite() {
+            lp.set_feedback_limit(self.config.supply_volts);
+        }
+        lp
     }
 }
 
@@ -273,32 +340,84 @@ impl SimArgs {
                  valid,
              }| { bad(flag_of(field), value, valid) },
         )?;
-        let (kp, kd) = match (self.kp, self.kd, self.damping, self.settling_time) {
-            (Some(kp), Some(kd), _, _) => (kp, kd),
-            (_, _, Some(zeta), Some(ts)) => {
-                let band = SettlingBand::percent(self.band).ok_or_else(|| {
-                    bad(
-                        "--band",
-                        self.band,
-                        "0 < band < 50 (percent) for a pole-placement design",
-                    )
-                })?;
-                let pd = tune::design_pd(&plant, zeta, ts, band)
-                    .map_err(|e| CliError::bad_input(format!("pole placement refused: {e}")))?;
-                (pd.kp, pd.kd)
+        let feedforward = (!self.no_feedforward).then(|| Feedforward::for_plant(&plant));
+        let design = if let (Some(wc), Some(pm)) = (self.crossover, self.phase_margin) {
+            let lead = tune::design_lead(&plant, wc, pm)
+                .map_err(|e| CliError::bad_input(format!("lead design refused: {e}")))?;
+            let coeffs = lead
+                .discretize(self.rate)
+                .map_err(|e| CliError::bad_input(format!("lead discretisation refused: {e}")))?;
+            AxisDesign::Lead(LeadLoopDesign::from_coeffs(&coeffs, feedforward))
+        } else if let (Some(b0), Some(b1), Some(a1)) = (self.lead_b0, self.lead_b1, self.lead_a1) {
+            if !(b0.is_finite() && b0 != 0.0) {
+                return Err(bad("--lead-b0", b0, "finite and non-zero (V per unit)"));
             }
-            _ => {
-                return Err(CliError::bad_input(
-                    "give the loop: --kp and --kd, or --damping and --settling-time",
-                ))
+            if !b1.is_finite() {
+                return Err(bad("--lead-b1", b1, "finite (V per unit)"));
             }
+            if !(a1.is_finite() && a1.abs() < 1.0) {
+                return Err(bad(
+                    "--lead-a1",
+                    a1,
+                    "-1 < a1 < 1 (a stable controller pole)",
+                ));
+            }
+            AxisDesign::Lead(LeadLoopDesign {
+                b0,
+                b1,
+                a1,
+                feedforward,
+            })
+        } else {
+            let (kp, kd) = match (self.kp, self.kd, self.damping, self.settling_time) {
+                (Some(kp), Some(kd), _, _) => (kp, kd),
+                (_, _, Some(zeta), Some(ts)) => {
+                    let band = SettlingBand::percent(self.band).ok_or_else(|| {
+                        bad(
+                            "--band",
+                            self.band,
+                            "0 < band < 50 (percent) for a pole-placement design",
+                        )
+                    })?;
+                    let pd = tune::design_pd(&plant, zeta, ts, band)
+                        .map_err(|e| CliError::bad_input(format!("pole placement refused: {e}")))?;
+                    (pd.kp, pd.kd)
+                }
+                _ => {
+                    return Err(CliError::bad_input(
+                        "give the loop: --kp and --kd, --damping and --settling-time, \
+                         --crossover and --phase-margin, or --lead-b0, --lead-b1 and --lead-a1",
+                    ))
+                }
+            };
+            if !(kp.is_finite() && kp > 0.0) {
+                return Err(bad("--kp", kp, "finite and > 0 (V per unit)"));
+            }
+            if !(kd.is_finite() && kd >= 0.0) {
+                return Err(bad("--kd", kd, "finite and >= 0 (V per unit/s)"));
+            }
+            AxisDesign::Pd(LoopDesign {
+                kp,
+                kd,
+                derivative: match self.derivative {
+                    DerivativeArg::OnError => DerivativeForm::OnError,
+                    DerivativeArg::OnMeasurement => DerivativeForm::OnMeasurement,
+                },
+                feedforward,
+            })
         };
-        if !(kp.is_finite() && kp > 0.0) {
-            return Err(bad("--kp", kp, "finite and > 0 (V per unit)"));
-        }
-        if !(kd.is_finite() && kd >= 0.0) {
-            return Err(bad("--kd", kd, "finite and >= 0 (V per unit/s)"));
-        }
+        let stall = match (self.stall_limit, self.stall_time) {
+            (Some(l), Some(t)) => {
+                if !(l.is_finite() && l > 0.0) {
+                    return Err(bad("--stall-limit", l, "finite and > 0 (units)"));
+                }
+                if !(t.is_finite() && t > 0.0) {
+                    return Err(bad("--stall-time", t, "finite and > 0 (seconds)"));
+                }
+                Some((l, t))
+            }
+            _ => None,
+        };
         let count_size = match (self.counts_per_unit, self.count_size) {
             (Some(n), _) => {
                 if !(n.is_finite() && n > 0.0) {
@@ -368,15 +487,6 @@ impl SimArgs {
             )));
         }
         config.ticks = ticks as u32;
-        let design = LoopDesign {
-            kp,
-            kd,
-            derivative: match self.derivative {
-                DerivativeArg::OnError => DerivativeForm::OnError,
-                DerivativeArg::OnMeasurement => DerivativeForm::OnMeasurement,
-            },
-            feedforward: (!self.no_feedforward).then(|| Feedforward::for_plant(&plant)),
-        };
         let axis = match self.axis {
             AxisArg::Forward => AxisKind::Forward,
             AxisArg::Rotation => AxisKind::Rotation,
@@ -385,6 +495,7 @@ impl SimArgs {
             config,
             design,
             axis,
+            stall,
         })
     }
 }
@@ -399,11 +510,12 @@ struct Run {
 #[derive(Debug, serde::Serialize)]
 struct Report<'a> {
     config: &'a SimConfig,
-    design: &'a LoopDesign,
-    kd_per_tick: f64,
+    design: &'a AxisDesign,
+    /// PD only: kd times the rate, V per unit/tick.
+    kd_per_tick: Option<f64>,
     duration_s: f64,
     /// Firmware constants' quantization (fixed arithmetic only).
-    quantization: Option<QuantizationReport>,
+    quantization: Option<AxisQuantization>,
     runs: Vec<Run>,
 }
 
@@ -420,18 +532,25 @@ fn print_text(r: &Report<'_>) {
         "plant: K = {} units/s/V, T = {} s, bias = {} V",
         c.plant.gain, c.plant.time_constant_s, c.plant.bias_volts
     );
-    println!(
-        "loop: kp = {} V/unit, kd = {} V/(unit/s) ({} V per unit/tick), {:?}, feedforward {}",
-        r.design.kp,
-        r.design.kd,
-        r.kd_per_tick,
-        r.design.derivative,
-        if r.design.feedforward.is_some() {
-            "on"
-        } else {
-            "off"
-        }
-    );
+    let ff = if r.design.feedforward().is_some() {
+        "on"
+    } else {
+        "off"
+    };
+    match r.design {
+        AxisDesign::Pd(d) => println!(
+            "loop: PD, kp = {} V/unit, kd = {} V/(unit/s) ({} V per unit/tick), {:?}, feedforward {ff}",
+            d.kp,
+            d.kd,
+            d.kd * c.rate_hz,
+            d.derivative,
+        ),
+        AxisDesign::Lead(d) => println!(
+            "loop: lead u[k] = b0 e[k] + b1 e[k-1] - a1 u[k-1], b0 = {} V/unit, b1 = {} V/unit, \
+             a1 = {}, feedforward {ff}",
+            d.b0, d.b1, d.a1,
+        ),
+    }
     println!(
         "run: {} Hz, {} ticks ({} s), count size {}, supply {}, delay {} ticks",
         c.rate_hz,
@@ -448,14 +567,26 @@ fn print_text(r: &Report<'_>) {
     );
     if let Some(q) = &r.quantization {
         println!("firmware constants (counts, ticks): held value, relative error");
-        for (name, c) in [
-            ("kp", q.kp),
-            ("kd_per_tick", q.kd_per_tick),
-            ("kv", q.kv),
-            ("ka", q.ka),
-            ("bias_volts", q.bias_volts),
-            ("limit_volts", q.limit_volts),
-        ] {
+        let list = match q {
+            AxisQuantization::Pd(q) => vec![
+                ("kp", q.kp),
+                ("kd_per_tick", q.kd_per_tick),
+                ("kv", q.kv),
+                ("ka", q.ka),
+                ("bias_volts", q.bias_volts),
+                ("limit_volts", q.limit_volts),
+            ],
+            AxisQuantization::Lead(q) => vec![
+                ("b0", q.b0),
+                ("b1", q.b1),
+                ("a1", q.a1),
+                ("kv", q.kv),
+                ("ka", q.ka),
+                ("bias_volts", q.bias_volts),
+                ("limit_volts", q.limit_volts),
+            ],
+        };
+        for (name, c) in list {
             println!("  {name:<12} {:<14.8e} {:.2e}", c.held, c.relative_error);
         }
     }
@@ -478,6 +609,12 @@ fn print_text(r: &Report<'_>) {
         println!("  RMS voltage          {:.4} V", m.rms_volts);
         println!("  voltage variation    {:.4} V", m.voltage_total_variation);
         println!("  ticks at the supply  {}", m.saturated_ticks);
+        if let Some(k) = m.stall_tick {
+            println!(
+                "  stall guard tripped  tick {k} ({:.4} s): duties 0 from then on",
+                f64::from(k) / c.rate_hz
+            );
+        }
     }
 }
 
@@ -515,7 +652,7 @@ pub fn run(args: Args) -> Result<(), CliError> {
     }
     if wants(Arithmetic::F64) {
         go("f64", &mut |traced| {
-            let mut l = IdealLoop::new(&design, &config.command, config.rate_hz);
+            let mut l = setup.ideal_loop();
             if traced {
                 let (m, t) = sim::simulate_traced(&config, &mut l);
                 (m, Some(t))
@@ -542,7 +679,10 @@ pub fn run(args: Args) -> Result<(), CliError> {
     let report = Report {
         config: &config,
         design: &design,
-        kd_per_tick: design.kd * config.rate_hz,
+        kd_per_tick: match design {
+            AxisDesign::Pd(d) => Some(d.kd * config.rate_hz),
+            AxisDesign::Lead(_) => None,
+        },
         duration_s: f64::from(config.ticks) / config.rate_hz,
         quantization,
         runs,

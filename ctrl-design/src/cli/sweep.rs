@@ -1,9 +1,8 @@
 //! `ctrl-design sweep`: the simulation over a spread of plant constants, worst case of each
 //! figure and the plant that gave it.
 
-use super::simulate::{Arithmetic, Setup, SimArgs};
+use super::simulate::{Arithmetic, SimArgs};
 use super::{CliError, Format};
-use ctrl_design::sim::IdealLoop;
 use ctrl_design::sweep::{self, Sampling, Spread, SweepReport, WorstCase};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use std::time::Instant;
@@ -72,7 +71,7 @@ fn line(name: &str, w: &WorstCase, unit: &str) {
 /// Runs the subcommand.
 pub fn run(args: Args) -> Result<(), CliError> {
     let setup = args.sim.setup()?;
-    let Setup { config, design, .. } = setup;
+    let config = setup.config;
     if !(args.spread.is_finite() && (0.0..100.0).contains(&args.spread)) {
         return Err(CliError::bad_input(format!(
             "--spread = {} is out of range: valid is 0 <= spread < 100 (percent)",
@@ -111,12 +110,7 @@ pub fn run(args: Args) -> Result<(), CliError> {
     };
     let start = Instant::now();
     let result = match args.arithmetic {
-        Arithmetic::F64 => sweep::sweep(
-            &config,
-            &plants,
-            || IdealLoop::new(&design, &config.command, config.rate_hz),
-            &bar,
-        ),
+        Arithmetic::F64 => sweep::sweep(&config, &plants, || setup.ideal_loop(), &bar),
         Arithmetic::Fixed => {
             let (proto, _) = setup.firmware_loop()?;
             sweep::sweep(&config, &plants, || proto.clone(), &bar)
@@ -147,12 +141,13 @@ pub fn run(args: Args) -> Result<(), CliError> {
         ),
         Format::Text => {
             println!(
-                "{} runs x {} ticks ({:.1} M ticks/s, {:.3} s), {} not settled",
+                "{} runs x {} ticks ({:.1} M ticks/s, {:.3} s), {} not settled, {} stalled",
                 result.runs,
                 config.ticks,
                 report.ticks_per_s / 1e6,
                 elapsed_s,
-                result.unsettled_runs
+                result.unsettled_runs,
+                result.stalled_runs
             );
             if let Some(w) = &result.worst {
                 println!("worst case:");

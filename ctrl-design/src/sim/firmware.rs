@@ -20,10 +20,14 @@
 //! precision; [`quantize_axis`] refuses a constant whose relative error would exceed the
 //! caller's bound and reports every constant's error.
 
-use super::{Command, Controller, DerivativeForm, LoopDesign, LoopOutput, Measurement, Setpoint};
+use super::{
+    AxisDesign, Command, Controller, DerivativeForm, LeadLoopDesign, LoopDesign, LoopOutput,
+    Measurement, Setpoint,
+};
 use ctrl_core::drive::{Axis, AxisState, Feedback};
 use ctrl_core::encoder::{EncoderState, Encoders};
 use ctrl_core::feedforward::Feedforward as CoreFeedforward;
+use ctrl_core::lead::Lead;
 use ctrl_core::mix::mix;
 use ctrl_core::pd::{Derivative, Pd};
 use ctrl_core::profile::Move;
@@ -220,7 +224,40 @@ pub fn quantize_axis(
     let (c, f) = (units.count_size, units.rate_hz);
     let (kp, kp_q) = coeff("kp", design.kp * c, max_relative_error)?;
     let (kd, kd_q) = coeff("kd_per_tick", design.kd * c * f, max_relative_error)?;
-    let ff = design.feedforward.unwrap_or(super::Feedforward {
+    let ff = quantize_feedforward(design.feedforward, units, max_relative_error)?;
+    let (limit, limit_q) = volts("limit_volts", limit_volts)?;
+    let derivative = match design.derivative {
+        DerivativeForm::OnError => Derivative::OnError,
+        DerivativeForm::OnMeasurement => Derivative::OnMeasurement,
+    };
+    Ok(QuantizedAxis {
+        feedforward: ff.core,
+        pd: Pd::new(kp, kd, derivative, limit),
+        report: QuantizationReport {
+            kp: kp_q,
+            kd_per_tick: kd_q,
+            kv: ff.kv,
+            ka: ff.ka,
+            bias_volts: ff.bias_volts,
+            limit_volts: limit_q,
+        },
+    })
+}
+
+struct QuantizedFeedforward {
+    core: CoreFeedforward,
+    kv: Quantized,
+    ka: Quantized,
+    bias_volts: Quantized,
+}
+
+fn quantize_feedforward(
+    ff: Option<super::Feedforward>,
+    units: &FirmwareUnits,
+    max_relative_error: f64,
+) -> Result<QuantizedFeedforward, QuantizeError> {
+    let (c, f) = (units.count_size, units.rate_hz);
+    let ff = ff.unwrap_or(super::Feedforward {
         volts_per_speed: 0.0,
         volts_per_accel: 0.0,
         bias_volts: 0.0,
@@ -228,23 +265,184 @@ pub fn quantize_axis(
     let (kv, kv_q) = coeff("kv", ff.volts_per_speed * c * f, max_relative_error)?;
     let (ka, ka_q) = coeff("ka", ff.volts_per_accel * c * f * f, max_relative_error)?;
     let (bias, bias_q) = volts("bias_volts", ff.bias_volts)?;
+    Ok(QuantizedFeedforward {
+        core: CoreFeedforward::new(kv, ka, bias),
+        kv: kv_q,
+        ka: ka_q,
+        bias_volts: bias_q,
+    })
+}
+
+/// The errors [`quantize_lead`] introduced, per constant (firmware units).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct LeadQuantizationReport {
+    /// `b0`, V/count.
+    pub b0: Quantized,
+    /// `b1`, V/count.
+    pub b1: Quantized,
+    /// `a1`, dimensionless.
+    pub a1: Quantized,
+    /// Speed feedforward `kv`, V per count/tick.
+    pub kv: Quantized,
+    /// Acceleration feedforward `ka`, V per count/tick^2.
+    pub ka: Quantized,
+    /// Friction bias, V.
+    pub bias_volts: Quantized,
+    /// Lead output limit, V.
+    pub limit_volts: Quantized,
+}
+
+impl LeadQuantizationReport {
+    /// The largest relative error of the gains (`b0`, `b1`, `a1`, `kv`, `ka`).
+    pub fn worst_gain_error(&self) -> f64 {
+        [self.b0, self.b1, self.a1, self.kv, self.ka]
+            .iter()
+            .map(|q| q.relative_error)
+            .fold(0.0, f64::max)
+    }
+}
+
+/// The `ctrl-core` constants of one lead axis and how closely they hold the design.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct QuantizedLead {
+    /// Feedforward (`Feedforward::NONE` when the design has none).
+    pub feedforward: CoreFeedforward,
+    /// Lead loop.
+    pub lead: Lead,
+    /// Errors introduced.
+    pub report: LeadQuantizationReport,
+}
+
+impl QuantizedLead {
+    /// The `ctrl-core` axis with the given stall guard.
+    pub const fn axis(&self, stall: StallGuard) -> Axis {
+        Axis::new(self.feedforward, Feedback::Lead(self.lead), stall)
+    }
+}
+
+/// Converts a lead design (user units) into `ctrl-core` constants: `b0`, `b1` from volts
+/// per unit to volts per count (`* count_size`), `a1` unchanged (dimensionless; the
+/// coefficients already belong to `units.rate_hz`), the feedforward as in
+/// [`quantize_axis`], the lead output limited to `limit_volts`. Refuses any gain held worse
+/// than `max_relative_error`, and an `a1` with `|a1| >= 1` (an unstable or marginal
+/// controller pole).
+///
+/// ```
+/// use ctrl_design::sim::{quantize_lead, FirmwareUnits, LeadLoopDesign};
+/// let design = LeadLoopDesign { b0: 0.8, b1: -0.77, a1: -0.9, feedforward: None };
+/// let units = FirmwareUnits { count_size: 0.36652, rate_hz: 500.0 };
+/// let q = quantize_lead(&design, &units, 6.4, 1e-3).unwrap();
+/// assert!((q.report.b0.held - 0.8 * 0.36652).abs() < 0.8 * 0.36652 * 3.1e-5);
+/// assert!((q.report.a1.held + 0.9).abs() < 0.9 * 3.1e-5);
+/// ```
+pub fn quantize_lead(
+    design: &LeadLoopDesign,
+    units: &FirmwareUnits,
+    limit_volts: f64,
+    max_relative_error: f64,
+) -> Result<QuantizedLead, QuantizeError> {
+    check_units(units)?;
+    let c = units.count_size;
+    if !(design.a1.abs() < 1.0) {
+        return Err(QuantizeError {
+            constant: "a1",
+            value: design.a1,
+            valid: "|a1| < 1 (a stable controller pole)".to_string(),
+        });
+    }
+    let (b0, b0_q) = coeff("b0", design.b0 * c, max_relative_error)?;
+    let (b1, b1_q) = coeff("b1", design.b1 * c, max_relative_error)?;
+    let (a1, a1_q) = coeff("a1", design.a1, max_relative_error)?;
+    let ff = quantize_feedforward(design.feedforward, units, max_relative_error)?;
     let (limit, limit_q) = volts("limit_volts", limit_volts)?;
-    let derivative = match design.derivative {
-        DerivativeForm::OnError => Derivative::OnError,
-        DerivativeForm::OnMeasurement => Derivative::OnMeasurement,
-    };
-    Ok(QuantizedAxis {
-        feedforward: CoreFeedforward::new(kv, ka, bias),
-        pd: Pd::new(kp, kd, derivative, limit),
-        report: QuantizationReport {
-            kp: kp_q,
-            kd_per_tick: kd_q,
-            kv: kv_q,
-            ka: ka_q,
-            bias_volts: bias_q,
+    Ok(QuantizedLead {
+        feedforward: ff.core,
+        lead: Lead::new(b0, b1, a1, limit),
+        report: LeadQuantizationReport {
+            b0: b0_q,
+            b1: b1_q,
+            a1: a1_q,
+            kv: ff.kv,
+            ka: ff.ka,
+            bias_volts: ff.bias_volts,
             limit_volts: limit_q,
         },
     })
+}
+
+/// The quantization report of either loop form (JSON: the report's fields, no tag).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+#[serde(untagged)]
+pub enum AxisQuantization {
+    /// A PD axis ([`quantize_axis`]).
+    Pd(QuantizationReport),
+    /// A lead axis ([`quantize_lead`]).
+    Lead(LeadQuantizationReport),
+}
+
+impl AxisQuantization {
+    /// The largest relative error of the gains.
+    pub fn worst_gain_error(&self) -> f64 {
+        match self {
+            AxisQuantization::Pd(r) => r.worst_gain_error(),
+            AxisQuantization::Lead(r) => r.worst_gain_error(),
+        }
+    }
+}
+
+/// [`quantize_axis`] or [`quantize_lead`] by the design's form: the `ctrl-core` axis with
+/// the stall guard off, and the report.
+pub fn quantize_design(
+    design: &AxisDesign,
+    units: &FirmwareUnits,
+    limit_volts: f64,
+    max_relative_error: f64,
+) -> Result<(Axis, AxisQuantization), QuantizeError> {
+    Ok(match design {
+        AxisDesign::Pd(d) => {
+            let q = quantize_axis(d, units, limit_volts, max_relative_error)?;
+            (q.axis(StallGuard::OFF), AxisQuantization::Pd(q.report))
+        }
+        AxisDesign::Lead(d) => {
+            let q = quantize_lead(d, units, limit_volts, max_relative_error)?;
+            (q.axis(StallGuard::OFF), AxisQuantization::Lead(q.report))
+        }
+    })
+}
+
+/// A stall guard in user units: it trips when |tracking error| exceeds `limit` (units,
+/// > 0) for `time_s` seconds (rounded to whole ticks, at least 1, at most 65535), converted
+/// to counts (`limit / count_size`, `I16F16`) and ticks.
+///
+/// ```
+/// use ctrl_design::sim::{stall_guard, FirmwareUnits};
+/// let units = FirmwareUnits { count_size: 0.5, rate_hz: 500.0 };
+/// let g = stall_guard(20.0, 0.1, &units).unwrap();
+/// assert_eq!((g.limit().to_num::<f64>(), g.ticks()), (40.0, 50));
+/// ```
+pub fn stall_guard(
+    limit: f64,
+    time_s: f64,
+    units: &FirmwareUnits,
+) -> Result<StallGuard, QuantizeError> {
+    check_units(units)?;
+    let counts = limit / units.count_size;
+    if !(limit > 0.0 && counts.is_finite() && counts < 32767.0) {
+        return Err(QuantizeError {
+            constant: "stall_limit",
+            value: counts,
+            valid: "> 0 and < 32767 counts".to_string(),
+        });
+    }
+    let ticks = (time_s * units.rate_hz).round();
+    if !(ticks.is_finite() && (1.0..=65535.0).contains(&ticks)) {
+        return Err(QuantizeError {
+            constant: "stall_time",
+            value: ticks,
+            valid: "1 ..= 65535 ticks".to_string(),
+        });
+    }
+    Ok(StallGuard::new(I16F16::from_num(counts), ticks as u16))
 }
 
 fn fixed32(constant: &'static str, x: f64, valid: &str) -> Result<I32F32, QuantizeError> {
@@ -327,6 +525,24 @@ impl FirmwareLoop {
         supply_volts: f64,
         command: &Command,
     ) -> Result<Self, QuantizeError> {
+        FirmwareLoop::with_axis(
+            axis.axis(StallGuard::OFF),
+            kind,
+            units,
+            supply_volts,
+            command,
+        )
+    }
+
+    /// As [`FirmwareLoop::new`] for any `ctrl-core` axis (PD or lead feedback, and its
+    /// stall guard as given).
+    pub fn with_axis(
+        axis: Axis,
+        kind: AxisKind,
+        units: &FirmwareUnits,
+        supply_volts: f64,
+        command: &Command,
+    ) -> Result<Self, QuantizeError> {
         check_units(units)?;
         let (battery, _) = volts("supply_volts", supply_volts)?;
         if !supply_volts.is_finite() || supply_volts <= 0.0 {
@@ -341,7 +557,7 @@ impl FirmwareLoop {
         let mut lp = FirmwareLoop {
             encoders: Encoders::new(false, false),
             encoder_state: EncoderState::new(),
-            axis: axis.axis(StallGuard::OFF),
+            axis,
             state: AxisState::new(),
             supply,
             // TwoAxisDrive limits the mix to min(battery, max volts); both are the supply.
@@ -382,9 +598,22 @@ impl FirmwareLoop {
         Ok(lp)
     }
 
-    /// The axis' constants (as built by [`QuantizedAxis::axis`] with the stall guard off).
+    /// The axis' constants (as built by [`QuantizedAxis::axis`] with the stall guard off,
+    /// unless given otherwise).
     pub fn axis(&self) -> &Axis {
         &self.axis
+    }
+
+    /// Replaces the axis' stall guard (off by default; see [`stall_guard`] for one in user
+    /// units). Once it trips, both wheel duties are 0, as in `TwoAxisDrive::tick`, until
+    /// the end of the run.
+    pub fn set_stall_guard(&mut self, guard: StallGuard) {
+        self.axis = Axis::new(self.axis.feedforward(), self.axis.feedback(), guard);
+    }
+
+    /// `true` once the stall guard has tripped (it latches).
+    pub fn is_stalled(&self) -> bool {
+        self.state.is_stalled()
     }
 
     /// One firmware tick with the encoders at `counts` (axis position); returns the wheel
@@ -402,6 +631,9 @@ impl FirmwareLoop {
                 let v =
                     self.axis
                         .update(&mut self.state, self.encoder_state.forward(), d.forward());
+                if self.state.is_stalled() {
+                    return [I16F16::ZERO; 2];
+                }
                 let w = mix(v, I16F16::ZERO, self.limit_volts);
                 // left == right here, so one duty serves both wheels.
                 let duty = self.supply.duty(w.left);
@@ -411,6 +643,9 @@ impl FirmwareLoop {
                 let v =
                     self.axis
                         .update(&mut self.state, self.encoder_state.rotation(), d.rotation());
+                if self.state.is_stalled() {
+                    return [I16F16::ZERO; 2];
+                }
                 let w = mix(I16F16::ZERO, v, self.limit_volts);
                 [self.supply.duty(w.left), self.supply.duty(w.right)]
             }
@@ -432,9 +667,30 @@ impl FirmwareLoop {
             q.report,
         ))
     }
+
+    /// [`quantize_design`] (either loop form) with [`MAX_RELATIVE_ERROR`] and the supply as
+    /// the feedback limit, then [`FirmwareLoop::with_axis`] (stall guard off).
+    pub fn from_axis_design(
+        design: &AxisDesign,
+        kind: AxisKind,
+        units: &FirmwareUnits,
+        supply_volts: f64,
+        command: &Command,
+    ) -> Result<(Self, AxisQuantization), QuantizeError> {
+        let (axis, report) = quantize_design(design, units, supply_volts, MAX_RELATIVE_ERROR)?;
+        Ok((
+            FirmwareLoop::with_axis(axis, kind, units, supply_volts, command)?,
+            report,
+        ))
+    }
 }
 
 impl Controller for FirmwareLoop {
+    #[inline]
+    fn stalled(&self) -> bool {
+        self.state.is_stalled()
+    }
+
     #[inline]
     fn tick(&mut self, m: &Measurement) -> LoopOutput {
         let duty = self.read(m.counts);

@@ -68,6 +68,74 @@ pub struct LoopDesign {
     pub feedforward: Option<Feedforward>,
 }
 
+/// A phase-lead position loop with optional feedforward, as designed (plant units, `f64`):
+/// the discrete law `u[k] = b0 e[k] + b1 e[k-1] - a1 u[k-1]` (`e[-1] = u[-1] = 0`),
+/// `v = u + feedforward(sp)`, the same law as `ctrl-core`'s `Lead`.
+///
+/// The coefficients are those of `C(z) = (b0 + b1 z^-1) / (1 + a1 z^-1)`, usually the
+/// pre-warped Tustin map of a continuous lead ([`LeadLoopDesign::from_coeffs`] with
+/// [`crate::tune::LeadDesign::discretize`]); they hold for one loop rate only.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct LeadLoopDesign {
+    /// Weight of the present tracking error, volts per unit.
+    pub b0: f64,
+    /// Weight of the previous tracking error, volts per unit.
+    pub b1: f64,
+    /// Weight of the previous output (dimensionless; enters with a minus sign; `|a1| < 1`
+    /// for a stable controller).
+    pub a1: f64,
+    /// Feedforward, or `None` to run on feedback alone.
+    pub feedforward: Option<Feedforward>,
+}
+
+impl LeadLoopDesign {
+    /// The loop with discretised lead coefficients (V per unit) and optional feedforward.
+    pub fn from_coeffs(
+        coeffs: &crate::analysis::LeadCoeffs,
+        feedforward: Option<Feedforward>,
+    ) -> Self {
+        LeadLoopDesign {
+            b0: coeffs.b0,
+            b1: coeffs.b1,
+            a1: coeffs.a1,
+            feedforward,
+        }
+    }
+}
+
+/// Either loop form the firmware runs: the PD ([`LoopDesign`]) or the phase lead
+/// ([`LeadLoopDesign`]).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(tag = "form", rename_all = "snake_case")]
+pub enum AxisDesign {
+    /// PD on error or on measurement.
+    Pd(LoopDesign),
+    /// Discrete phase lead.
+    Lead(LeadLoopDesign),
+}
+
+impl AxisDesign {
+    /// The feedforward of either form.
+    pub fn feedforward(&self) -> Option<Feedforward> {
+        match self {
+            AxisDesign::Pd(d) => d.feedforward,
+            AxisDesign::Lead(d) => d.feedforward,
+        }
+    }
+}
+
+impl From<LoopDesign> for AxisDesign {
+    fn from(d: LoopDesign) -> Self {
+        AxisDesign::Pd(d)
+    }
+}
+
+impl From<LeadLoopDesign> for AxisDesign {
+    fn from(d: LeadLoopDesign) -> Self {
+        AxisDesign::Lead(d)
+    }
+}
+
 /// The trapezoidal (or triangular) move of `distance` from rest to rest, sampled exactly.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct MoveF64 {
@@ -153,20 +221,31 @@ enum Reference {
 ///
 /// Like `ctrl-core`'s profile, which advances one tick before it hands out a setpoint, tick
 /// `k` follows the move's setpoint at time `(k + 1) / rate`.
+///
+/// The lead form's output is clamped at `±feedback_limit_volts` (no limit unless
+/// [`IdealLoop::set_feedback_limit`] sets one) and the clamped value is what it remembers,
+/// like `ctrl-core`'s `Lead`.
 #[derive(Debug, Clone)]
 pub struct IdealLoop {
-    design: LoopDesign,
+    design: AxisDesign,
     reference: Reference,
     rate_hz: f64,
     tick_s: f64,
     k: u64,
     prev_measured: f64,
     prev_error: f64,
+    prev_output: f64,
+    feedback_limit_volts: f64,
 }
 
 impl IdealLoop {
-    /// A loop at rest (measured position 0) about to run `command` at `rate_hz`.
+    /// A PD loop at rest (measured position 0) about to run `command` at `rate_hz`.
     pub fn new(design: &LoopDesign, command: &Command, rate_hz: f64) -> Self {
+        IdealLoop::with_design(&AxisDesign::Pd(*design), command, rate_hz)
+    }
+
+    /// Either loop form at rest (measured position 0) about to run `command` at `rate_hz`.
+    pub fn with_design(design: &AxisDesign, command: &Command, rate_hz: f64) -> Self {
         let reference = match *command {
             Command::Step { distance } => Reference::Step(distance),
             Command::Move {
@@ -183,7 +262,16 @@ impl IdealLoop {
             k: 0,
             prev_measured: 0.0,
             prev_error: 0.0,
+            prev_output: 0.0,
+            feedback_limit_volts: f64::INFINITY,
         }
+    }
+
+    /// Clamps the lead form's output at `±volts` (> 0; the firmware uses the supply), as
+    /// `ctrl-core`'s `Lead` does. The PD form is not affected (its firmware output limit is
+    /// reached only when the supply clips the command anyway).
+    pub fn set_feedback_limit(&mut self, volts: f64) {
+        self.feedback_limit_volts = volts.abs();
     }
 }
 
@@ -197,7 +285,16 @@ impl IdealLoop {
         command: &Command,
         units: &FirmwareUnits,
     ) -> Result<Self, QuantizeError> {
-        let mut lp = IdealLoop::new(design, command, units.rate_hz);
+        IdealLoop::with_design_on_firmware_profile(&AxisDesign::Pd(*design), command, units)
+    }
+
+    /// [`IdealLoop::on_firmware_profile`] for either loop form.
+    pub fn with_design_on_firmware_profile(
+        design: &AxisDesign,
+        command: &Command,
+        units: &FirmwareUnits,
+    ) -> Result<Self, QuantizeError> {
+        let mut lp = IdealLoop::with_design(design, command, units.rate_hz);
         if let Command::Move {
             distance,
             cruise_speed,
@@ -239,14 +336,28 @@ impl Controller for IdealLoop {
         };
         self.k += 1;
         let e = sp.position - m.position;
-        let d = match self.design.derivative {
-            DerivativeForm::OnError => (e - self.prev_error) * self.rate_hz,
-            DerivativeForm::OnMeasurement => (self.prev_measured - m.position) * self.rate_hz,
+        let (fb, feedforward) = match &self.design {
+            AxisDesign::Pd(pd) => {
+                let d = match pd.derivative {
+                    DerivativeForm::OnError => (e - self.prev_error) * self.rate_hz,
+                    DerivativeForm::OnMeasurement => {
+                        (self.prev_measured - m.position) * self.rate_hz
+                    }
+                };
+                (pd.kp * e + pd.kd * d, &pd.feedforward)
+            }
+            AxisDesign::Lead(lead) => {
+                let lim = self.feedback_limit_volts;
+                let u = (lead.b0 * e + lead.b1 * self.prev_error - lead.a1 * self.prev_output)
+                    .max(-lim)
+                    .min(lim);
+                self.prev_output = u;
+                (u, &lead.feedforward)
+            }
         };
         self.prev_error = e;
         self.prev_measured = m.position;
-        let fb = self.design.kp * e + self.design.kd * d;
-        let ff = match &self.design.feedforward {
+        let ff = match feedforward {
             Some(f) => f.volts(&sp),
             None => 0.0,
         };

@@ -34,6 +34,9 @@ pub struct Metrics {
     pub saturated_ticks: u32,
     /// Ticks simulated.
     pub ticks: u32,
+    /// The tick in which the loop's stall guard tripped (the firmware's duties are 0 from
+    /// that tick's command on); `None` when it never tripped or the loop has none.
+    pub stall_tick: Option<u32>,
 }
 
 /// Running accumulator behind [`Metrics`]: a handful of compares per tick, no storage.
@@ -142,6 +145,7 @@ impl MetricsAcc {
             voltage_total_variation: self.tv,
             saturated_ticks: self.saturated,
             ticks: self.n,
+            stall_tick: None,
         }
     }
 }

@@ -21,10 +21,13 @@ mod plot;
 
 pub use drive::Drive;
 pub use firmware::{
-    quantize_axis, quantize_move, AxisKind, FirmwareLoop, FirmwareUnits, QuantizationReport,
-    QuantizeError, Quantized, QuantizedAxis, MAX_RELATIVE_ERROR,
+    quantize_axis, quantize_design, quantize_lead, quantize_move, stall_guard, AxisKind,
+    AxisQuantization, FirmwareLoop, FirmwareUnits, LeadQuantizationReport, QuantizationReport,
+    QuantizeError, Quantized, QuantizedAxis, QuantizedLead, MAX_RELATIVE_ERROR,
 };
-pub use ideal::{DerivativeForm, Feedforward, IdealLoop, LoopDesign, MoveF64};
+pub use ideal::{
+    AxisDesign, DerivativeForm, Feedforward, IdealLoop, LeadLoopDesign, LoopDesign, MoveF64,
+};
 pub use metrics::Metrics;
 pub use plot::plot_svg;
 
@@ -73,6 +76,13 @@ pub struct LoopOutput {
 pub trait Controller {
     /// Computes this tick's command from the measurement.
     fn tick(&mut self, measured: &Measurement) -> LoopOutput;
+
+    /// `true` once the loop's stall guard has tripped (asked after each tick; a loop
+    /// without one never trips).
+    #[inline]
+    fn stalled(&self) -> bool {
+        false
+    }
 }
 
 /// The command the loop follows from rest at position 0.
@@ -361,6 +371,7 @@ fn run<C: Controller, R: Recorder>(cfg: &SimConfig, ctrl: &mut C, rec: &mut R) -
     };
     let inv_count = cfg.count_size.map(|c| 1.0 / c);
     let count_size = cfg.count_size.unwrap_or(0.0);
+    let mut stall_tick = None;
     for k in 0..cfg.ticks {
         let measured = match inv_count {
             Some(inv) => {
@@ -376,6 +387,9 @@ fn run<C: Controller, R: Recorder>(cfg: &SimConfig, ctrl: &mut C, rec: &mut R) -
             },
         };
         let out = ctrl.tick(&measured);
+        if stall_tick.is_none() && ctrl.stalled() {
+            stall_tick = Some(k);
+        }
         let cmd = out.command_volts;
         let clipped = cmd.abs() > supply;
         let v = cmd.max(-supply).min(supply);
@@ -395,7 +409,9 @@ fn run<C: Controller, R: Recorder>(cfg: &SimConfig, ctrl: &mut C, rec: &mut R) -
         let d = if u64::from(k) >= load_from { load } else { 0.0 };
         drive.step(applied + d);
     }
-    acc.finish(tick_s)
+    let mut m = acc.finish(tick_s);
+    m.stall_tick = stall_tick;
+    m
 }
 
 /// `x.floor()` without the library call (x86-64's baseline has no rounding instruction):
