@@ -12,7 +12,7 @@
 //   forward  kd_not_negative      ok: Kd = 0.00244444 V per mm/s (settling time 0.5 s, longest for this plant 0.72 s)
 //   forward  discrete_stable      ok: largest closed-loop pole magnitude 0.98405 (with one tick of delay)
 //   forward  overshoot            ok: 0.257573 % overshoot (discrete, one tick of delay)
-//   forward  rate_ratio           ok: loop rate 500 Hz is 413.179x the closed-loop bandwidth 1.21013 Hz
+//   forward  rate_ratio           ok: loop rate 500 Hz is 413.96x the closed-loop bandwidth 1.20785 Hz
 //   forward  derivative_chatter   ok: one encoder count (0.366519 mm) steps the voltage by 0.447968 V (6.9995 % of the lowest supply)
 //   forward  counts_per_tick      ok: at cruise the wheel moves 2.1827 counts per tick
 //   forward  peak_move_volts      ok: a 400 mm/s move at 1200 mm/s^2 needs 3.52222 V (lowest supply 6.4 V)
@@ -21,7 +21,7 @@
 //   rotation lead_feasible        ok: needs 15.0303 deg of lead at 12 rad/s (one stage gives up to 65 deg)
 //   rotation discrete_stable      ok: largest closed-loop pole magnitude 0.984334 (with one tick of delay)
 //   rotation overshoot            ok: 5.21802 % overshoot (discrete, one tick of delay)
-//   rotation rate_ratio           ok: loop rate 500 Hz is 163.962x the closed-loop bandwidth 3.0495 Hz
+//   rotation rate_ratio           ok: loop rate 500 Hz is 164.132x the closed-loop bandwidth 3.04633 Hz
 //   rotation derivative_chatter   ok: one encoder count (0.00523599 rad) steps the voltage by 0.0408919 V (0.638936 % of the lowest supply)
 //   rotation counts_per_tick      ok: at cruise the wheel moves 1.52789 counts per tick
 //   rotation peak_move_volts      ok: a 4 rad/s move at 15 rad/s^2 needs 2.74231 V (lowest supply 6.4 V)

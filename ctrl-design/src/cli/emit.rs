@@ -239,7 +239,7 @@ fn summary_text(e: &Emission, args: &Args, plots: &[PathBuf]) -> String {
         w,
         "\nchecks: {passed} of {} passed, {} warnings",
         e.checks.len(),
-        e.checks.iter().filter(|c| !c.passed).count()
+        e.warnings.len()
     );
     for c in &e.checks {
         let _ = writeln!(
