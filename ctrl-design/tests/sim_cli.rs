@@ -348,3 +348,117 @@ fn sweep_json_has_the_worst_cases_and_is_seeded() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("--spread"));
 }
+
+// The lead loop from crossover and phase margin: the design block carries the discrete
+// coefficients tune::design_lead + discretize give, the fixed-point run reports b0, b1 (V
+// per count: times the count size) and a1, and the two arithmetics agree to well under
+// one count.
+#[test]
+fn simulate_runs_the_lead_loop_from_crossover_and_margin() {
+    let mut args = vec!["simulate"];
+    args.extend(with(&[
+        "--crossover",
+        "30",
+        "--phase-margin",
+        "50",
+        "--distance",
+        "400",
+        "--cruise-speed",
+        "400",
+        "--accel",
+        "1200",
+        "--arithmetic",
+        "both",
+        "--format",
+        "json",
+    ]));
+    let out = tool(&args);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: Value = serde_json::from_slice(&out.stdout).expect("one JSON object");
+    assert_eq!(v["design"]["form"], "lead");
+    let plant = ctrl_design::Plant::new(180.0, 0.09, 0.7).unwrap();
+    let c = ctrl_design::tune::design_lead(&plant, 30.0, 50.0)
+        .unwrap()
+        .discretize(500.0)
+        .unwrap();
+    assert_eq!(v["design"]["b0"].as_f64().unwrap(), c.b0);
+    assert_eq!(v["design"]["a1"].as_f64().unwrap(), c.a1);
+    assert_eq!(v["kd_per_tick"], Value::Null);
+    let q = &v["quantization"];
+    assert!((q["b1"]["wanted"].as_f64().unwrap() - c.b1 * 0.36652).abs() < 1e-15);
+    assert_eq!(q["a1"]["wanted"].as_f64().unwrap(), c.a1);
+    let runs = v["runs"].as_array().unwrap();
+    let fe = |i: usize| runs[i]["metrics"]["final_error"].as_f64().unwrap();
+    assert!((fe(0) - fe(1)).abs() < 0.36652, "{} vs {}", fe(0), fe(1));
+}
+
+#[test]
+fn simulate_reports_the_stall_guard_trip_and_refuses_bad_lead_input() {
+    let mut args = vec!["simulate"];
+    args.extend(with(&[
+        "--kp",
+        "0.12",
+        "--kd",
+        "0.004",
+        "--distance",
+        "400",
+        "--cruise-speed",
+        "400",
+        "--accel",
+        "1200",
+        "--disturbance",
+        "-50",
+        "--stall-limit",
+        "20",
+        "--stall-time",
+        "0.1",
+        "--format",
+        "json",
+    ]));
+    let out = tool(&args);
+    assert!(out.status.success());
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let k = v["runs"][0]["metrics"]["stall_tick"].as_u64().unwrap();
+    assert!((50..=143).contains(&k), "tick {k}");
+    for (flag, value, name) in [
+        ("--lead-a1", "1.5", "--lead-a1"),
+        ("--stall-time", "-1", "--stall-time"),
+    ] {
+        let mut args = vec!["simulate"];
+        let extra: Vec<&str> = if flag == "--lead-a1" {
+            vec![
+                "--lead-b0",
+                "0.8",
+                "--lead-b1",
+                "-0.77",
+                flag,
+                value,
+                "--step",
+                "10",
+            ]
+        } else {
+            vec![
+                "--kp",
+                "0.12",
+                "--kd",
+                "0",
+                "--stall-limit",
+                "5",
+                flag,
+                value,
+                "--step",
+                "10",
+            ]
+        };
+        args.extend(ROVER.iter().copied());
+        args.extend(extra);
+        let out = tool(&args);
+        assert_eq!(out.status.code(), Some(2), "{flag} {value}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(name) && err.contains("valid"), "{err}");
+    }
+}
