@@ -32,6 +32,7 @@ use crate::identify::{self, Identification, Log};
 use crate::sim;
 use crate::tune;
 use crate::Plant;
+use ctrl_core::drive::Feedback;
 
 /// Largest relative quantization error any emitted constant may have, percent.
 pub const QUANTIZATION_LIMIT_PCT: f64 = 0.1;
@@ -807,10 +808,65 @@ pub fn check_move_distance(a: &AxisDesign) -> f64 {
     a.moves.cruise_speed * a.moves.cruise_speed / a.moves.accel + 0.5 * a.moves.cruise_speed
 }
 
+/// One axis' loop in `ctrl-core` form, converted by the simulation's conversion
+/// ([`sim::quantize_axis`] for PD, [`sim::quantize_lead`] for lead), with the output clamp at
+/// the highest supply, and the errors it introduced.
+struct QuantizedGains {
+    feedforward: ctrl_core::feedforward::Feedforward,
+    feedback: Feedback,
+    /// `kp`, `kd_per_tick` (PD) or `b0`, `b1`, `a1` (lead).
+    gains: Vec<sim::Quantized>,
+    kv: sim::Quantized,
+    ka: sim::Quantized,
+    bias_volts: sim::Quantized,
+}
+
+fn quantize_gains(
+    design: &DesignFile,
+    r: &AxisReport,
+) -> Result<QuantizedGains, sim::QuantizeError> {
+    let units = sim::FirmwareUnits {
+        count_size: 1.0 / r.counts_per_unit,
+        rate_hz: design.drive.loop_rate_hz,
+    };
+    let ff = Some(sim::Feedforward::for_plant(&r.plant));
+    let limit = design.supply.highest_volts;
+    match r.gains {
+        Gains::Pd { kp, kd, .. } => {
+            let d = sim::LoopDesign {
+                kp,
+                kd,
+                derivative: sim::DerivativeForm::OnError,
+                feedforward: ff,
+            };
+            let q = sim::quantize_axis(&d, &units, limit, f64::INFINITY)?;
+            Ok(QuantizedGains {
+                feedforward: q.feedforward,
+                feedback: Feedback::Pd(q.pd),
+                gains: vec![q.report.kp, q.report.kd_per_tick],
+                kv: q.report.kv,
+                ka: q.report.ka,
+                bias_volts: q.report.bias_volts,
+            })
+        }
+        Gains::Lead { coeffs, .. } => {
+            let d = sim::LeadLoopDesign::from_coeffs(&coeffs, ff);
+            let q = sim::quantize_lead(&d, &units, limit, f64::INFINITY)?;
+            Ok(QuantizedGains {
+                feedforward: q.feedforward,
+                feedback: Feedback::Lead(q.lead),
+                gains: vec![q.report.b0, q.report.b1, q.report.a1],
+                kv: q.report.kv,
+                ka: q.report.ka,
+                bias_volts: q.report.bias_volts,
+            })
+        }
+    }
+}
+
 /// Simulates one move of `report`'s axis from rest through `ctrl-core`'s fixed-point drive
-/// (the loop the firmware runs, built by [`sim::quantize_axis`] like the emitted
-/// constants) against the exact drive model ([`sim::Drive`]), fed from `supply_volts`,
-/// with `delay_ticks` of computation delay, for the move's time plus 0.6 s. PD loops only.
+/// (the loop the firmware runs, built by the same conversion as the emitted constants) against the exact drive model ([`sim::Drive`]), fed from `supply_volts`,
+/// with `delay_ticks` of computation delay, for the move's time plus 0.6 s.
 pub fn simulate_move(
     design: &DesignFile,
     report: &AxisReport,
@@ -818,39 +874,25 @@ pub fn simulate_move(
     supply_volts: f64,
     delay_ticks: u32,
 ) -> Result<(sim::Metrics, sim::Trace), String> {
-    let (kp, kd) = match report.gains {
-        Gains::Pd { kp, kd, .. } => (kp, kd),
-        Gains::Lead { .. } => return Err("the move simulation runs PD loops only".into()),
-    };
     let ad = design.axis(report.axis);
     let rate = design.drive.loop_rate_hz;
     let units = sim::FirmwareUnits {
         count_size: 1.0 / report.counts_per_unit,
         rate_hz: rate,
     };
-    let loop_design = sim::LoopDesign {
-        kp,
-        kd,
-        derivative: sim::DerivativeForm::OnError,
-        feedforward: Some(sim::Feedforward::for_plant(&report.plant)),
-    };
     let command = sim::Command::Move {
         distance,
         cruise_speed: ad.moves.cruise_speed,
         accel: ad.moves.accel,
     };
-    let q = sim::quantize_axis(
-        &loop_design,
-        &units,
-        design.supply.highest_volts,
-        f64::INFINITY,
-    )
-    .map_err(|e| e.to_string())?;
+    let q = quantize_gains(design, report).map_err(|e| e.to_string())?;
+    let axis =
+        ctrl_core::drive::Axis::new(q.feedforward, q.feedback, ctrl_core::stall::StallGuard::OFF);
     let kind = match report.axis {
         Axis::Forward => sim::AxisKind::Forward,
         Axis::Rotation => sim::AxisKind::Rotation,
     };
-    let mut lp = sim::FirmwareLoop::new(&q, kind, &units, supply_volts, &command)
+    let mut lp = sim::FirmwareLoop::with_axis(axis, kind, &units, supply_volts, &command)
         .map_err(|e| e.to_string())?;
     let ticks = ((command.duration_s() + 0.6) * rate).ceil() as u32;
     let cfg = sim::SimConfig {
@@ -1048,53 +1090,63 @@ fn constants(design: &DesignFile, axes: &[AxisReport]) -> Result<Vec<Constant>, 
         let loop_key = format!("{a}.loop");
         let p = r.plant;
         let pk = format!("{a}.plant");
-        // PD gains and feedforward through the simulation's conversion, so the simulated
+        // Gains and feedforward through the simulation's conversion, so the simulated
         // firmware loop and the emitted constants cannot disagree.
-        let (kp, kd) = match r.gains {
-            Gains::Pd { kp, kd, .. } => (kp, kd),
-            Gains::Lead { .. } => (0.0, 0.0),
-        };
-        let loop_design = sim::LoopDesign {
-            kp,
-            kd,
-            derivative: sim::DerivativeForm::OnError,
-            feedforward: Some(sim::Feedforward::for_plant(&p)),
-        };
-        let units = sim::FirmwareUnits {
-            count_size: 1.0 / cpu,
-            rate_hz: rate,
-        };
-        match sim::quantize_axis(
-            &loop_design,
-            &units,
-            design.supply.highest_volts,
-            f64::INFINITY,
-        ) {
+        match quantize_gains(design, r) {
             Ok(q) => {
-                if let Gains::Pd { .. } = r.gains {
-                    b.held(
-                        format!("{a}.kp"),
-                        "Coeff",
-                        q.report.kp,
-                        coeff_expr(q.pd.kp()),
-                        "V/count",
-                        format!("{} V/{u}", sig(kp)),
-                        &loop_key,
-                    );
-                    b.held(
-                        format!("{a}.kd_per_tick"),
-                        "Coeff",
-                        q.report.kd_per_tick,
-                        coeff_expr(q.pd.kd_per_tick()),
-                        "V per count/tick",
-                        format!("Kd {} V per {u}/s, times {rate} Hz", sig(kd)),
-                        &loop_key,
-                    );
+                match (&q.feedback, r.gains) {
+                    (Feedback::Pd(pd), Gains::Pd { kp, kd, .. }) => {
+                        b.held(
+                            format!("{a}.kp"),
+                            "Coeff",
+                            q.gains[0],
+                            coeff_expr(pd.kp()),
+                            "V/count",
+                            format!("{} V/{u}", sig(kp)),
+                            &loop_key,
+                        );
+                        b.held(
+                            format!("{a}.kd_per_tick"),
+                            "Coeff",
+                            q.gains[1],
+                            coeff_expr(pd.kd_per_tick()),
+                            "V per count/tick",
+                            format!("Kd {} V per {u}/s, times {rate} Hz", sig(kd)),
+                            &loop_key,
+                        );
+                    }
+                    (Feedback::Lead(lead), Gains::Lead { coeffs, .. }) => {
+                        let [c0, c1, ca] = lead.coefficients();
+                        let user = [
+                            format!("{} V/{u}", sig(coeffs.b0)),
+                            format!("{} V/{u}", sig(coeffs.b1)),
+                            sig(coeffs.a1),
+                        ];
+                        for (i, (name, c, unit)) in [
+                            ("lead_b0", c0, "V/count"),
+                            ("lead_b1", c1, "V/count"),
+                            ("lead_a1", ca, "1"),
+                        ]
+                        .into_iter()
+                        .enumerate()
+                        {
+                            b.held(
+                                format!("{a}.{name}"),
+                                "Coeff",
+                                q.gains[i],
+                                coeff_expr(c),
+                                unit,
+                                user[i].clone(),
+                                &loop_key,
+                            );
+                        }
+                    }
+                    _ => unreachable!("quantize_gains keeps the loop form"),
                 }
                 b.held(
                     format!("{a}.kv"),
                     "Coeff",
-                    q.report.kv,
+                    q.kv,
                     coeff_expr(q.feedforward.kv()),
                     "V per count/tick",
                     format!("1/K = {} V per {u}/s", sig(1.0 / p.gain)),
@@ -1103,7 +1155,7 @@ fn constants(design: &DesignFile, axes: &[AxisReport]) -> Result<Vec<Constant>, 
                 b.held(
                     format!("{a}.ka"),
                     "Coeff",
-                    q.report.ka,
+                    q.ka,
                     coeff_expr(q.feedforward.ka()),
                     "V per count/tick^2",
                     format!("T/K = {} V per {u}/s^2", sig(p.time_constant_s / p.gain)),
@@ -1112,7 +1164,7 @@ fn constants(design: &DesignFile, axes: &[AxisReport]) -> Result<Vec<Constant>, 
                 b.held(
                     format!("{a}.bias_volts"),
                     "I16F16",
-                    q.report.bias_volts,
+                    q.bias_volts,
                     format!(
                         "::fixed::types::I16F16::from_bits({})",
                         q.feedforward.bias_volts().to_bits()
@@ -1127,32 +1179,6 @@ fn constants(design: &DesignFile, axes: &[AxisReport]) -> Result<Vec<Constant>, 
                 format!("cannot convert the {a} design to firmware units: {e}"),
                 None,
             )),
-        }
-        if let Gains::Lead { coeffs, .. } = r.gains {
-            b.add(
-                format!("{a}.lead_b0"),
-                "Coeff",
-                coeffs.b0 / cpu,
-                "V/count",
-                format!("{} V/{u}", sig(coeffs.b0)),
-                &loop_key,
-            );
-            b.add(
-                format!("{a}.lead_b1"),
-                "Coeff",
-                coeffs.b1 / cpu,
-                "V/count",
-                format!("{} V/{u}", sig(coeffs.b1)),
-                &loop_key,
-            );
-            b.add(
-                format!("{a}.lead_a1"),
-                "Coeff",
-                coeffs.a1,
-                "1",
-                sig(coeffs.a1),
-                &loop_key,
-            );
         }
         b.add(
             format!("{a}.stall_limit"),

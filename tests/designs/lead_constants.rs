@@ -26,7 +26,7 @@
 //   rotation counts_per_tick      ok: at cruise the wheel moves 1.52789 counts per tick
 //   rotation peak_move_volts      ok: a 4 rad/s move at 15 rad/s^2 needs 2.74231 V (lowest supply 6.4 V)
 //   rotation stall_guard_ticks    ok: trips after 100 ticks over the limit
-//   rotation stall_guard_margin   WARNING: not simulated: the move simulation runs PD loops only
+//   rotation stall_guard_margin   ok: a 3.06667 rad full-speed move tracks within 0.00675975 rad (guard limit 0.25 rad)
 // Largest quantization error: 0.00235864 % (rotation.kv); limit 0.1 %.
 
 /// Loop rate, ticks per second.
