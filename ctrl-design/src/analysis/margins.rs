@@ -113,7 +113,7 @@ impl FactoredLoop {
         let lo = mags.iter().cloned().fold(f64::INFINITY, f64::min);
         let hi = mags.iter().cloned().fold(0.0, f64::max);
         let (lo, hi) = if lo.is_finite() {
-            (lo * 1e-4, hi * 1e4)
+            (lo * 1e-6, hi * 1e4)
         } else {
             (1e-4, 1e4)
         };
@@ -128,8 +128,18 @@ impl FactoredLoop {
 
     /// Gain and phase margins.
     pub fn margins(&self) -> Margins {
-        let (lo, hi) = self.range();
-        let n = 8000;
+        let (mut lo, hi) = self.range();
+        // A loop with an integrator has unbounded gain at low frequency: reach down
+        // until the gain is above 1 so a very low crossover is not missed.
+        let integrator = self.poles.iter().any(|p| match self.sample_period_s {
+            None => p.abs() < 1e-12,
+            Some(_) => (*p - Complex::real(1.0)).abs() < 1e-12,
+        });
+        while integrator && lo > 1e-12 && self.log_gain(lo) < 0.0 {
+            lo /= 10.0;
+        }
+        // About 1000 points per decade.
+        let n = (((hi / lo).log10() * 1000.0).ceil() as usize).clamp(2000, 40_000);
         let ratio = (hi / lo).ln() / n as f64;
         let ws: Vec<f64> = (0..=n)
             .map(|k| {
@@ -241,6 +251,20 @@ mod tests {
         assert!((m.gain_crossover_rad_s.unwrap() - wc).abs() < 1e-9);
         assert!((m.phase_margin_deg.unwrap() - (90.0 - wc.atan().to_degrees())).abs() < 1e-9);
         assert_eq!(m.gain_margin_db, None);
+    }
+
+    #[test]
+    fn very_low_crossover_is_found() {
+        // L = 1e-7 / (s (s + 1)): |L| = 1 near w = 1e-7, phase margin ~ 90 deg.
+        let l = FactoredLoop {
+            gain: 1e-7,
+            zeros: vec![],
+            poles: vec![Complex::real(0.0), Complex::real(-1.0)],
+            sample_period_s: None,
+        };
+        let m = l.margins();
+        assert!((m.gain_crossover_rad_s.unwrap() - 1e-7).abs() < 1e-12);
+        assert!((m.phase_margin_deg.unwrap() - 90.0).abs() < 1e-4);
     }
 
     #[test]
