@@ -306,7 +306,7 @@ impl Default for CheckLimits {
             max_overshoot_pct: 25.0,
             max_chatter_share: crate::tune::MAX_DERIVATIVE_STEP_SHARE,
             min_rate_ratio: crate::tune::MIN_RATE_PER_BANDWIDTH,
-            max_quantization_error_pct: 0.1,
+            max_quantization_error_pct: crate::emit::QUANTIZATION_LIMIT_PCT,
         }
     }
 }
@@ -815,7 +815,7 @@ impl Validator<'_> {
                     v,
                     0.0,
                     true,
-                    0.1,
+                    crate::emit::QUANTIZATION_LIMIT_PCT,
                     false,
                 );
             }
@@ -1237,6 +1237,17 @@ mod tests {
                 info.valid
             );
         }
+    }
+
+    #[test]
+    fn quantization_bound_is_the_emitters() {
+        let info = key_info("checks.max_quantization_error_pct").unwrap();
+        let bound = crate::emit::QUANTIZATION_LIMIT_PCT;
+        assert!(
+            info.valid.contains(&format!("at most {bound};")),
+            "{}",
+            info.valid
+        );
     }
 
     #[test]
