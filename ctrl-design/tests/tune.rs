@@ -353,6 +353,11 @@ proptest! {
         prop_assert!(p.peak_speed <= vc * (1.0 + 1e-12));
         prop_assert!((p.peak_speed - a * tdec - v1).abs() < 1e-6 * vc);
     }
+}
+
+proptest! {
+    // Each case runs a target search; fewer cases keep the debug test run short.
+    #![proptest_config(ProptestConfig::with_cases(16))]
 
     #[test]
     fn garbage_never_panics(kp in proptest::num::f64::ANY, kd in proptest::num::f64::ANY, rate in proptest::num::f64::ANY) {
