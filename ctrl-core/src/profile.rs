@@ -263,70 +263,169 @@ enum Mode {
     Brake,
 }
 
-/// A planned move, in the move's direction (`w = ±v`). See the module docs.
+/// Most segments a plan holds: the interior is affine between at most nine break points
+/// (the six of [`Shape::splits`], both ends of the `+1 LSB` ticks and the last tick), so
+/// a plan never has more than ten pieces (merged pieces need fewer).
+const SEGMENTS: usize = 10;
+
+/// One affine piece of a plan's output speed: `ticks` ticks, the first at speed `first`,
+/// each following one `delta` faster (all LSB, signed, as output).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+struct Segment {
+    /// Ticks in the piece (at least 1 in a used segment).
+    ticks: u64,
+    /// Speed on the first tick of the piece.
+    first: i64,
+    /// Speed change per tick after the first.
+    delta: i64,
+}
+
+impl Segment {
+    const NONE: Segment = Segment {
+        ticks: 0,
+        first: 0,
+        delta: 0,
+    };
+}
+
+/// A planned move as precomputed speed pieces (see the module docs): the speed sequence
+/// `clamp(c, L[k], U[k])` (plus the `+1 LSB` ticks) is piecewise affine, so `start` lists
+/// its pieces once and `step` only counts down and adds.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 struct Plan {
-    /// The move runs in the negative direction (speeds are negated on output).
-    negative: bool,
-    /// Ticks done.
-    tick: u64,
-    /// Ticks in the plan (`K`).
-    ticks: u64,
-    /// Acceleration, LSB/tick².
-    accel: i128,
-    /// `w0 + k a`.
-    entry_up: i128,
-    /// `w0 − k a`.
-    entry_down: i128,
-    /// `ve + (K − k) a`.
-    exit_up: i128,
-    /// `ve − (K − k) a`.
-    exit_down: i128,
-    /// Cruise level `c`.
-    level: i128,
-    /// Ticks `bump_from..bump_to` run at `c + 1`.
-    bump_from: u64,
-    /// End (exclusive) of the `+1 LSB` ticks.
-    bump_to: u64,
+    /// The pieces, in order; `segments[..count]` are used.
+    segments: [Segment; SEGMENTS],
+    /// Number of used pieces.
+    count: u8,
+    /// Next piece to start.
+    next: u8,
+    /// Ticks left in the running piece (0: start the next one on the next tick).
+    left: u64,
+    /// Speed change per tick in the running piece.
+    delta: i64,
 }
 
 impl Plan {
     const IDLE: Plan = Plan {
-        negative: false,
-        tick: 0,
-        ticks: 0,
-        accel: 0,
-        entry_up: 0,
-        entry_down: 0,
-        exit_up: 0,
-        exit_down: 0,
-        level: 0,
-        bump_from: 0,
-        bump_to: 0,
+        segments: [Segment::NONE; SEGMENTS],
+        count: 0,
+        next: 0,
+        left: 0,
+        delta: 0,
     };
 
-    /// Next speed (LSB/tick, signed). Adds and compares only.
-    fn advance(&mut self) -> i64 {
-        self.tick = self.tick.saturating_add(1);
-        let a = self.accel;
-        self.entry_up = self.entry_up.saturating_add(a);
-        self.entry_down = self.entry_down.saturating_sub(a);
-        self.exit_up = self.exit_up.saturating_sub(a);
-        self.exit_down = self.exit_down.saturating_add(a);
-        let lower = self.entry_down.max(self.exit_down);
-        let upper = self.entry_up.min(self.exit_up);
-        let level = if self.tick >= self.bump_from && self.tick < self.bump_to {
-            self.level.saturating_add(1)
-        } else {
-            self.level
+    /// The plan for `shape` at level `level` with `+1 LSB` on ticks `bump_from..bump_to`,
+    /// output with the sign of the move (`negative`). Start-time work only.
+    fn build(shape: &Shape, level: i128, bump_from: i128, bump_to: i128, negative: bool) -> Plan {
+        let n = shape.n;
+        // Output speed at tick `k` (1 ..= n), exactly as the per-tick envelope plan gives it.
+        let out = |k: i128| {
+            let c = if k >= bump_from && k < bump_to {
+                level + 1
+            } else {
+                level
+            };
+            let w = sat_i64(shape.value(k, c));
+            if negative {
+                w.saturating_neg()
+            } else {
+                w
+            }
         };
-        let w = sat_i64(level.max(lower).min(upper));
-        if self.negative {
-            w.saturating_neg()
-        } else {
-            w
+        // Last ticks of the affine pieces: sorted break points inside 1 ..= n − 1, then n.
+        let mut ends = [0i128; SEGMENTS];
+        let [s0, s1, s2, s3, s4, s5] = shape.splits(level);
+        let candidates = [s0, s1, s2, s3, s4, s5, bump_from - 1, bump_to - 1, n - 1];
+        let mut used = 0;
+        for e in candidates {
+            if e >= 1 && e < n {
+                if let Some(slot) = ends.get_mut(used) {
+                    *slot = e;
+                    used += 1;
+                }
+            }
         }
+        if let Some(slot) = ends.get_mut(used) {
+            *slot = n;
+            used += 1;
+        }
+        let ends = ends.get_mut(..used).unwrap_or(&mut []);
+        ends.sort_unstable();
+        let mut plan = Plan::IDLE;
+        let mut count = 0usize;
+        let mut first_k = 1;
+        for &end in ends.iter() {
+            if end < first_k {
+                continue; // a repeated break point
+            }
+            let ticks = end - first_k + 1;
+            let first = out(first_k);
+            let delta = if ticks > 1 {
+                out(first_k + 1).wrapping_sub(first)
+            } else {
+                0
+            };
+            first_k = end + 1;
+            let ticks = u64::try_from(ticks).unwrap_or(0);
+            // Merge into the previous piece when this one continues it.
+            if let Some(prev) = count.checked_sub(1).and_then(|i| plan.segments.get_mut(i)) {
+                let step = if prev.ticks > 1 {
+                    prev.delta
+                } else {
+                    first.wrapping_sub(prev.first)
+                };
+                let next = i128::from(prev.first)
+                    + i128::from(prev.ticks as i64).saturating_mul(i128::from(step));
+                if next == i128::from(first) && (ticks == 1 || delta == step) {
+                    prev.delta = step;
+                    prev.ticks += ticks;
+                    continue;
+                }
+            }
+            if let Some(slot) = plan.segments.get_mut(count) {
+                *slot = Segment {
+                    ticks,
+                    first,
+                    delta,
+                };
+                count += 1;
+            }
+        }
+        plan.count = count as u8;
+        plan
+    }
+
+    /// Next speed (LSB/tick, signed) and whether the plan is over. Counts and adds only.
+    #[inline(always)]
+    fn advance(&mut self, prev: i64) -> (i64, bool) {
+        let v = if self.left == 0 {
+            match self.segments.get(usize::from(self.next)) {
+                Some(seg) if self.next < self.count => {
+                    self.next += 1;
+                    self.left = seg.ticks;
+                    self.delta = seg.delta;
+                    seg.first
+                }
+                _ => prev,
+            }
+        } else {
+            prev.wrapping_add(self.delta)
+        };
+        self.left = self.left.saturating_sub(1);
+        (v, self.left == 0 && self.next >= self.count)
+    }
+
+    /// Ticks left in the plan.
+    const fn ticks_left(&self) -> u64 {
+        let mut total = self.left;
+        let mut i = self.next as usize;
+        while i < self.count as usize && i < SEGMENTS {
+            total = total.saturating_add(self.segments[i].ticks);
+            i += 1;
+        }
+        total
     }
 }
 
@@ -444,6 +543,33 @@ impl Profile {
     /// assert_eq!(p.start(good), Ok(()));
     /// ```
     pub fn start(&mut self, mv: Move) -> Result<(), Error> {
+        let planned = self.prepare(mv)?;
+        self.brake_accel = sat_i64(i128::from(mv.accel.to_bits()));
+        match planned {
+            None => {
+                // Already there and at rest: nothing to do.
+                self.mode = Mode::Coast;
+                self.accel = 0;
+            }
+            Some((shape, found, negative)) => {
+                let bump_from = i128::from(found.bump_from);
+                self.plan = Plan::build(
+                    &shape,
+                    found.level,
+                    bump_from,
+                    bump_from + i128::from(found.bump),
+                    negative,
+                );
+                self.mode = Mode::Plan;
+            }
+        }
+        Ok(())
+    }
+
+    /// The checks and the solution for [`Profile::start`], leaving `self` unchanged:
+    /// `None` when already at the target and at rest, else the shape, the solved plan and
+    /// whether the move runs in the negative direction.
+    fn prepare(&self, mv: Move) -> Result<Option<(Shape, Solution, bool)>, Error> {
         let distance = i128::from(mv.distance.to_bits());
         let vc = i128::from(mv.cruise_speed.to_bits());
         let ve = i128::from(mv.end_speed.to_bits());
@@ -458,11 +584,7 @@ impl Profile {
         }
         let u = i128::from(self.speed);
         if distance == 0 && u == 0 {
-            // Already there and at rest: nothing to do.
-            self.mode = Mode::Coast;
-            self.accel = 0;
-            self.brake_accel = sat_i64(a);
-            return Ok(());
+            return Ok(None);
         }
         let negative = distance < 0 || (distance == 0 && u < 0);
         let signed = |x: i128| if negative { -x } else { x };
@@ -478,23 +600,13 @@ impl Profile {
         let w0 = signed(u);
         let m = (q - w0 - ve) >> 1; // even by the choice of `half`
         let found = solve(w0, ve, vc, a, m, q >> 1)?;
-        let n = i128::from(found.ticks);
-        self.plan = Plan {
-            negative,
-            tick: 0,
-            ticks: found.ticks,
-            accel: a,
-            entry_up: w0,
-            entry_down: w0,
-            exit_up: ve + mul(n, a),
-            exit_down: ve - mul(n, a),
-            level: found.level,
-            bump_from: found.bump_from,
-            bump_to: found.bump_from + found.bump,
+        let shape = Shape {
+            w0,
+            ve,
+            a,
+            n: i128::from(found.ticks),
         };
-        self.mode = Mode::Plan;
-        self.brake_accel = sat_i64(a);
-        Ok(())
+        Ok(Some((shape, found, negative)))
     }
 
     /// Advances one tick and returns the new setpoint. Adds and compares only; never
@@ -516,8 +628,8 @@ impl Profile {
         let next = match self.mode {
             Mode::Coast => prev,
             Mode::Plan => {
-                let v = self.plan.advance();
-                if self.plan.tick >= self.plan.ticks {
+                let (v, over) = self.plan.advance(prev);
+                if over {
                     self.mode = Mode::Coast;
                 }
                 v
@@ -622,7 +734,7 @@ impl Profile {
     /// ```
     pub const fn ticks_left(&self) -> u64 {
         match self.mode {
-            Mode::Plan => self.plan.ticks.saturating_sub(self.plan.tick),
+            Mode::Plan => self.plan.ticks_left(),
             Mode::Coast | Mode::Brake => 0,
         }
     }
@@ -706,16 +818,7 @@ impl Shape {
         if last < 1 {
             return 0;
         }
-        let a = self.a;
-        let na = mul(self.n, a);
-        let mut splits = [
-            floor_div(self.w0 - c, a),
-            floor_div(c - self.w0, a),
-            floor_div(na - self.ve + c, a),
-            floor_div(na + self.ve - c, a),
-            floor_div(self.w0 - self.ve + na, 2 * a),
-            floor_div(self.ve - self.w0 + na, 2 * a),
-        ];
+        let mut splits = self.splits(c);
         splits.sort_unstable();
         let mut first = 1;
         let mut total = 0;
@@ -726,6 +829,23 @@ impl Shape {
             }
         }
         total + self.piece(first, last, c)
+    }
+
+    /// The break points for level `c` (unsorted): `w[k]` is affine in `k` on each run of
+    /// ticks between them, a run ending at a break point `f` (tick `f` is the last of one
+    /// run, `f + 1` the first of the next). Each is where one comparison inside the clamp
+    /// (a line against `c`, or the two lines of `L` or of `U` against each other) flips.
+    fn splits(&self, c: i128) -> [i128; 6] {
+        let a = self.a;
+        let na = mul(self.n, a);
+        [
+            floor_div(self.w0 - c, a),
+            floor_div(c - self.w0, a),
+            floor_div(na - self.ve + c, a),
+            floor_div(na + self.ve - c, a),
+            floor_div(self.w0 - self.ve + na, 2 * a),
+            floor_div(self.ve - self.w0 + na, 2 * a),
+        ]
     }
 
     /// Sum of `w[k]` for `k` in `first..=last`, where it is affine in `k`.
@@ -980,7 +1100,304 @@ fn solve(w0: i128, ve: i128, vc: i128, a: i128, m: i128, d: i128) -> Result<Solu
 
 #[cfg(test)]
 mod tests {
+    extern crate std;
+
     use super::*;
+    use proptest::prelude::*;
+    use std::format;
+
+    /// Reference model: the per-tick envelope plan that `Profile::step` ran before the
+    /// plans became precomputed pieces (kept verbatim, only renamed). Each tick adds `a` to
+    /// the four lines `w0 ± k a`, `ve ± (K − k) a`, takes the two `max`/`min` and clamps
+    /// the level (`+1 LSB` on the bump ticks).
+    #[derive(Clone, Copy, Debug)]
+    struct EnvelopePlan {
+        negative: bool,
+        tick: u64,
+        ticks: u64,
+        accel: i128,
+        entry_up: i128,
+        entry_down: i128,
+        exit_up: i128,
+        exit_down: i128,
+        level: i128,
+        bump_from: u64,
+        bump_to: u64,
+    }
+
+    impl EnvelopePlan {
+        fn advance(&mut self) -> i64 {
+            self.tick = self.tick.saturating_add(1);
+            let a = self.accel;
+            self.entry_up = self.entry_up.saturating_add(a);
+            self.entry_down = self.entry_down.saturating_sub(a);
+            self.exit_up = self.exit_up.saturating_sub(a);
+            self.exit_down = self.exit_down.saturating_add(a);
+            let lower = self.entry_down.max(self.exit_down);
+            let upper = self.entry_up.min(self.exit_up);
+            let level = if self.tick >= self.bump_from && self.tick < self.bump_to {
+                self.level.saturating_add(1)
+            } else {
+                self.level
+            };
+            let w = sat_i64(level.max(lower).min(upper));
+            if self.negative {
+                w.saturating_neg()
+            } else {
+                w
+            }
+        }
+    }
+
+    #[derive(Clone, Copy, Debug, PartialEq, Eq)]
+    enum RefMode {
+        Coast,
+        Plan,
+        Brake,
+    }
+
+    /// Reference model of the whole profile with the old per-tick plan: the same state
+    /// update as the old `Profile::step` (doubled `i128` position, brake, coast). Planning
+    /// goes through the shared `Profile::prepare` (unchanged by the rewrite of `step`).
+    #[derive(Clone, Debug)]
+    struct Reference {
+        pos2: i128,
+        speed: i64,
+        accel: i64,
+        mode: RefMode,
+        brake_accel: i64,
+        plan: Option<EnvelopePlan>,
+    }
+
+    impl Reference {
+        fn at(position: i64) -> Reference {
+            Reference {
+                pos2: 2 * i128::from(position),
+                speed: 0,
+                accel: 0,
+                mode: RefMode::Coast,
+                brake_accel: 0,
+                plan: None,
+            }
+        }
+
+        fn start(&mut self, mv: Move) -> Result<(), Error> {
+            let probe = Profile {
+                pos2: self.pos2,
+                speed: self.speed,
+                ..Profile::new()
+            };
+            let planned = probe.prepare(mv)?;
+            let a = i128::from(mv.accel.to_bits());
+            self.brake_accel = sat_i64(a);
+            match planned {
+                None => {
+                    self.mode = RefMode::Coast;
+                    self.accel = 0;
+                }
+                Some((shape, found, negative)) => {
+                    let n = shape.n;
+                    self.plan = Some(EnvelopePlan {
+                        negative,
+                        tick: 0,
+                        ticks: found.ticks,
+                        accel: a,
+                        entry_up: shape.w0,
+                        entry_down: shape.w0,
+                        exit_up: shape.ve + mul(n, a),
+                        exit_down: shape.ve - mul(n, a),
+                        level: found.level,
+                        bump_from: found.bump_from,
+                        bump_to: found.bump_from + found.bump,
+                    });
+                    self.mode = RefMode::Plan;
+                }
+            }
+            Ok(())
+        }
+
+        fn step(&mut self) -> Setpoint {
+            let prev = self.speed;
+            let next = match (self.mode, self.plan.as_mut()) {
+                (RefMode::Plan, Some(plan)) => {
+                    let v = plan.advance();
+                    if plan.tick >= plan.ticks {
+                        self.mode = RefMode::Coast;
+                    }
+                    v
+                }
+                (RefMode::Brake, _) => {
+                    let a = self.brake_accel;
+                    if prev > a {
+                        prev - a
+                    } else if prev < -a {
+                        prev + a
+                    } else {
+                        self.mode = RefMode::Coast;
+                        0
+                    }
+                }
+                _ => prev,
+            };
+            self.pos2 = self
+                .pos2
+                .saturating_add(i128::from(prev) + i128::from(next));
+            self.accel = next.saturating_sub(prev);
+            self.speed = next;
+            self.setpoint()
+        }
+
+        fn hold(&mut self) {
+            self.mode = RefMode::Coast;
+            self.speed = 0;
+            self.accel = 0;
+        }
+
+        fn stop(&mut self) {
+            if self.speed == 0 || self.brake_accel <= 0 {
+                self.hold();
+            } else {
+                self.mode = RefMode::Brake;
+            }
+        }
+
+        fn is_done(&self) -> bool {
+            self.mode == RefMode::Coast
+        }
+
+        fn ticks_left(&self) -> u64 {
+            match (self.mode, self.plan) {
+                (RefMode::Plan, Some(p)) => p.ticks.saturating_sub(p.tick),
+                _ => 0,
+            }
+        }
+
+        fn setpoint(&self) -> Setpoint {
+            Setpoint {
+                position: I32F32::from_bits(sat_i64(self.pos2 / 2)),
+                speed: I32F32::from_bits(self.speed),
+                accel: I32F32::from_bits(self.accel),
+            }
+        }
+    }
+
+    #[derive(Clone, Debug)]
+    enum Op {
+        Start(i64, i64, i64, i64),
+        Steps(u16),
+        Finish,
+        Stop,
+        Hold,
+    }
+
+    /// LSB values of one scale: tiny integers (many one-tick pieces and ties), the demo
+    /// rover's range, or anything.
+    fn scaled(lo: i64, hi: i64) -> BoxedStrategy<i64> {
+        prop_oneof![lo..hi, (lo << 26)..(hi << 30), any::<i64>()].boxed()
+    }
+
+    fn op() -> impl Strategy<Value = Op> {
+        prop_oneof![
+            4 => (scaled(-60, 60), scaled(1, 12), scaled(0, 12), scaled(1, 6))
+                .prop_map(|(d, vc, ve, a)| Op::Start(d, vc, ve.min(vc).max(0), a)),
+            2 => (scaled(-60, 60), scaled(1, 12), Just(0i64), scaled(1, 6))
+                .prop_map(|(d, vc, ve, a)| Op::Start(d, vc, ve, a)),
+            3 => (0u16..400).prop_map(Op::Steps),
+            2 => Just(Op::Finish),
+            1 => Just(Op::Stop),
+            1 => Just(Op::Hold),
+        ]
+    }
+
+    fn same(p: &Profile, r: &Reference, what: &str) {
+        assert_eq!(p.setpoint(), r.setpoint(), "setpoint after {what}");
+        assert_eq!(p.is_done(), r.is_done(), "is_done after {what}");
+        assert_eq!(p.ticks_left(), r.ticks_left(), "ticks_left after {what}");
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(3000))]
+
+        /// The precomputed pieces give, tick for tick, bit for bit, what the per-tick
+        /// envelope plan gave: over chains of moves, retargets at any tick, stops and
+        /// holds, from any start position.
+        #[test]
+        fn pieces_match_the_per_tick_envelope_plan(
+            start in scaled(-1000, 1000),
+            ops in proptest::collection::vec(op(), 1..12),
+        ) {
+            let mut p = Profile::at(I32F32::from_bits(start));
+            let mut r = Reference::at(start);
+            for (i, op) in ops.iter().enumerate() {
+                let what = format!("op {i} {op:?}");
+                match *op {
+                    Op::Start(d, vc, ve, a) => {
+                        let m = Move::new(
+                            I32F32::from_bits(d),
+                            I32F32::from_bits(vc),
+                            I32F32::from_bits(ve),
+                            I32F32::from_bits(a),
+                        );
+                        prop_assert_eq!(p.start(m), r.start(m), "{}", what);
+                    }
+                    Op::Steps(n) => {
+                        for _ in 0..n {
+                            prop_assert_eq!(p.step(), r.step(), "{}", what);
+                        }
+                    }
+                    Op::Finish => {
+                        // Up to the end of the running move (bounded for huge plans).
+                        let mut n = 0;
+                        while !r.is_done() && n < 20_000 {
+                            prop_assert_eq!(p.step(), r.step(), "{}", what);
+                            n += 1;
+                        }
+                    }
+                    Op::Stop => {
+                        p.stop();
+                        r.stop();
+                    }
+                    Op::Hold => {
+                        p.hold();
+                        r.hold();
+                    }
+                }
+                same(&p, &r, &what);
+            }
+        }
+    }
+
+    #[test]
+    fn pieces_of_the_hand_checked_move() {
+        // 6 counts at cruise 2, accel 1 from rest: speeds 1, 2, 2, 1, 0 on ticks 1..=5
+        // (the hand check in the `Profile` docs) are two affine pieces: 1, 2 (+1 per
+        // tick), then 2, 1, 0 (-1 per tick).
+        let one = 1i64 << 32;
+        let mut p = Profile::new();
+        p.start(Move::new(
+            I32F32::from_num(6),
+            I32F32::from_num(2),
+            I32F32::ZERO,
+            I32F32::ONE,
+        ))
+        .unwrap();
+        let used = &p.plan.segments[..usize::from(p.plan.count)];
+        assert_eq!(
+            used,
+            [
+                Segment {
+                    ticks: 2,
+                    first: one,
+                    delta: one
+                },
+                Segment {
+                    ticks: 3,
+                    first: 2 * one,
+                    delta: -one
+                },
+            ]
+        );
+    }
 
     #[test]
     fn first_fit_gives_the_same_answer_for_any_hint() {
