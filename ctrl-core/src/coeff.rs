@@ -235,7 +235,7 @@ impl Coeff {
     /// // 1000 * 1000 does not fit in I16F16 (max 32767.99998): saturates.
     /// assert_eq!(Coeff::from_bits(1000, 0).saturating_mul(I16F16::from_num(1000)), I16F16::MAX);
     /// ```
-    #[inline]
+    #[inline(always)]
     pub const fn saturating_mul(self, x: I16F16) -> I16F16 {
         I16F16::from_bits(mul_bits(
             self.mantissa as i32,
@@ -250,7 +250,7 @@ impl Coeff {
 /// The 48-bit product `m * xb` is split as `p1 * 2^16 + p0` with `p1 = m * (xb >> 16)` and
 /// `p0 = m * (xb & 0xFFFF)`; both fit in `i32` exactly because `|m| <= 32767`:
 /// `|p1| <= 32767 * 32768 < 2^30`, `p0` in `[-32767 * 65535, 32767 * 65535]`.
-#[inline]
+#[inline(always)]
 const fn mul_bits(m: i32, s: u32, xb: i32) -> i32 {
     let p1 = m * (xb >> 16);
     let p0 = m * (xb & 0xFFFF);

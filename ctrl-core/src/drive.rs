@@ -286,7 +286,7 @@ impl Axis {
     /// assert_eq!(a.update(&mut st, I32F32::from_num(1.5), I16F16::ZERO), I16F16::from_num(-3));
     /// assert!(st.is_stalled()); // |error| 1.5 > 1 for 1 tick
     /// ```
-    #[inline]
+    #[inline(always)]
     pub fn update(
         &self,
         state: &mut AxisState,

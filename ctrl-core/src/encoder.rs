@@ -237,7 +237,7 @@ impl Encoders {
     /// assert_eq!(enc.update(&mut st, 5000, 7).left, 0);
     /// assert_eq!(enc.update(&mut st, 4990, 7).left, -10);
     /// ```
-    #[inline]
+    #[inline(always)]
     pub fn update(&self, state: &mut EncoderState, left_raw: u16, right_raw: u16) -> WheelDeltas {
         if !state.started {
             state.started = true;

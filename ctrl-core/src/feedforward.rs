@@ -106,7 +106,7 @@ impl Feedforward {
     /// let ff = Feedforward::new(Coeff::ZERO, Coeff::ZERO, I16F16::lit("0.5"));
     /// assert_eq!(ff.volts(I16F16::DELTA, I16F16::ZERO), I16F16::lit("0.5"));
     /// ```
-    #[inline]
+    #[inline(always)]
     pub fn volts(&self, speed: I16F16, accel: I16F16) -> I16F16 {
         let bias = if speed.to_bits() > 0 {
             self.bias_volts

@@ -135,7 +135,7 @@ impl Lead {
     /// assert_eq!(l.update(&mut st, I16F16::ONE), I16F16::lit("6"));
     /// assert_eq!(st.prev_output(), I16F16::lit("6"));
     /// ```
-    #[inline]
+    #[inline(always)]
     pub fn update(&self, state: &mut LeadState, error: I16F16) -> I16F16 {
         let u = self
             .b0

@@ -45,7 +45,7 @@ pub struct WheelVolts {
 /// let w = mix(v(5.0), v(-10.0), v(8.0));
 /// assert_eq!((w.left, w.right), (v(8.0), v(-8.0)));
 /// ```
-#[inline]
+#[inline(always)]
 pub const fn mix(forward: I16F16, rotation: I16F16, limit_volts: I16F16) -> WheelVolts {
     let lim = abs_sat(limit_volts);
     let r = clamp_sym(rotation, lim);

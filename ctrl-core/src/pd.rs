@@ -179,7 +179,7 @@ impl Pd {
     /// let u = pd.update(&mut st, I16F16::from_num(2), I16F16::from_num(0.5));
     /// assert_eq!(u, I16F16::from_num(0.5));
     /// ```
-    #[inline]
+    #[inline(always)]
     pub fn update(&self, state: &mut PdState, error: I16F16, measured_speed: I16F16) -> I16F16 {
         let d = match self.derivative {
             Derivative::OnError => error.saturating_sub(state.prev_error),

@@ -159,7 +159,7 @@ impl StallGuard {
     /// assert!(!g.update(&mut st, I16F16::lit("11")));
     /// assert!(g.update(&mut st, I16F16::lit("11")));
     /// ```
-    #[inline]
+    #[inline(always)]
     pub fn update(&self, state: &mut StallState, error: I16F16) -> bool {
         if abs_sat(error) > self.limit {
             state.over = state.over.saturating_add(1);

@@ -128,7 +128,7 @@ impl SupplyState {
     /// Supply::new(I16F16::lit("6")).set_battery(&mut st, I16F16::lit("8"));
     /// assert_eq!(st.duty(I16F16::lit("-20")), -I16F16::ONE);
     /// ```
-    #[inline]
+    #[inline(always)]
     pub const fn duty(&self, volts: I16F16) -> I16F16 {
         clamp_sym(self.reciprocal.saturating_mul(volts), I16F16::ONE)
     }
