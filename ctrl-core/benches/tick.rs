@@ -5,7 +5,7 @@
 
 use std::hint::black_box;
 
-use criterion::{criterion_group, criterion_main, Criterion};
+use criterion::{criterion_group, criterion_main, BatchSize, Criterion, Throughput};
 use ctrl_core::{
     drive::{Axis, DriveState, Feedback, TwoAxisDrive},
     encoder::Encoders,
@@ -58,33 +58,80 @@ fn moves() -> (Move, Move) {
     )
 }
 
-fn bench(cr: &mut Criterion) {
+/// Ticks per measured batch: both moves are still running at the last one (the turn, the
+/// shorter move, lasts about 330 ticks; the forward move about 1400).
+const TICKS: usize = 300;
+
+/// Fresh fixed-point state with the battery read and both moves just started.
+fn fixed_state(drive: &TwoAxisDrive) -> DriveState {
     let (fwd, turn) = moves();
-    let drive = fixed_drive();
     let mut st = DriveState::new();
     drive.set_battery(&mut st, I16F16::lit("7.4"));
     st.forward_mut().start(fwd).unwrap();
     st.rotation_mut().start(turn).unwrap();
+    st
+}
+
+/// Fresh `f32` state, same moves.
+fn float_state() -> float::DriveState {
+    let (fwd, turn) = moves();
+    let mut st = float::DriveState::new(6.4);
+    st.supply.set_battery(7.4);
+    st.forward.profile.start(fwd).unwrap();
+    st.rotation.profile.start(turn).unwrap();
+    st
+}
+
+/// Raw counter readings of wheels that follow the setpoints one tick late (so no stall
+/// guard trips and every tick is a moving tick); right wheel counts backwards.
+fn follow_raw(drive: &TwoAxisDrive) -> Vec<(u16, u16)> {
+    let mut st = fixed_state(drive);
     let mut raw = (0u16, 0u16);
-    cr.bench_function("two_axis_tick_fixed", |b| {
-        b.iter(|| {
-            raw = (raw.0.wrapping_add(2), raw.1.wrapping_sub(2));
-            black_box(drive.tick(&mut st, black_box(raw.0), black_box(raw.1)))
-        })
+    let mut out = Vec::with_capacity(TICKS);
+    for _ in 0..TICKS {
+        out.push(raw);
+        drive.tick(&mut st, raw.0, raw.1);
+        let s = st.sample();
+        assert!(!st.is_stalled());
+        let f: i64 = s.forward.setpoint.round().to_num();
+        let r: i64 = s.rotation.setpoint.round().to_num();
+        raw = ((f - r) as u16, (-(f + r)) as u16);
+    }
+    assert!(!st.forward().profile().is_done() && !st.rotation().profile().is_done());
+    out
+}
+
+fn bench(cr: &mut Criterion) {
+    let drive = fixed_drive();
+    let raw = follow_raw(&drive);
+    let mut g = cr.benchmark_group("two_axis_tick");
+    // Reported per tick: each batch restarts both moves from a fresh state.
+    g.throughput(Throughput::Elements(TICKS as u64));
+    g.bench_function("fixed", |b| {
+        b.iter_batched_ref(
+            || fixed_state(&drive),
+            |st| {
+                for &(l, r) in &raw {
+                    black_box(drive.tick(st, black_box(l), black_box(r)));
+                }
+            },
+            BatchSize::SmallInput,
+        )
     });
 
     let fdrive = float_drive();
-    let mut fst = float::DriveState::new(6.4);
-    fst.supply.set_battery(7.4);
-    fst.forward.profile.start(fwd).unwrap();
-    fst.rotation.profile.start(turn).unwrap();
-    let mut raw = (0u16, 0u16);
-    cr.bench_function("two_axis_tick_f32", |b| {
-        b.iter(|| {
-            raw = (raw.0.wrapping_add(2), raw.1.wrapping_sub(2));
-            black_box(fdrive.tick(&mut fst, black_box(raw.0), black_box(raw.1)))
-        })
+    g.bench_function("f32", |b| {
+        b.iter_batched_ref(
+            float_state,
+            |st| {
+                for &(l, r) in &raw {
+                    black_box(fdrive.tick(st, black_box(l), black_box(r)));
+                }
+            },
+            BatchSize::SmallInput,
+        )
     });
+    g.finish();
 }
 
 criterion_group!(benches, bench);
