@@ -243,3 +243,43 @@ fn out_of_range_requests_are_refused_with_the_field() {
     .unwrap_err();
     assert!(e.to_string().contains("valid is"));
 }
+
+// The sweep steps runs two at a time (simulate_pair); each lane must give exactly the
+// figures of its own simulate call, for both loops, with a stall guard that trips in one
+// lane only, and with unequal lengths (the fallback).
+#[test]
+fn paired_runs_equal_single_runs_exactly() {
+    use ctrl_design::sim::{simulate_pair, stall_guard, Disturbance};
+    let (base, design) = setup();
+    let units = FirmwareUnits {
+        count_size: 0.36652,
+        rate_hz: 500.0,
+    };
+    let a = SimConfig {
+        plant: Plant::new(150.0, 0.1, 0.5).unwrap(),
+        ..base
+    };
+    let b = SimConfig {
+        plant: Plant::new(210.0, 0.07, 0.9).unwrap(),
+        disturbance: Some(Disturbance {
+            volts: -40.0,
+            start_s: 0.2,
+        }),
+        ..base
+    };
+    let short = SimConfig { ticks: 321, ..a };
+    let (mut proto, _) =
+        FirmwareLoop::from_design(&design, AxisKind::Forward, &units, 6.4, &base.command).unwrap();
+    proto.set_stall_guard(stall_guard(20.0, 0.1, &units).unwrap());
+    for (x, y) in [(a, b), (b, a), (a, short)] {
+        let [mx, my] = simulate_pair([&x, &y], [&mut proto.clone(), &mut proto.clone()]);
+        assert_eq!(mx, simulate(&x, &mut proto.clone()));
+        assert_eq!(my, simulate(&y, &mut proto.clone()));
+        let ideal = || IdealLoop::new(&design, &base.command, 500.0);
+        let [ix, iy] = simulate_pair([&x, &y], [&mut ideal(), &mut ideal()]);
+        assert_eq!(ix, simulate(&x, &mut ideal()));
+        assert_eq!(iy, simulate(&y, &mut ideal()));
+    }
+    let [_, mb] = simulate_pair([&a, &b], [&mut proto.clone(), &mut proto.clone()]);
+    assert!(mb.stall_tick.is_some(), "the loaded lane trips: {mb:?}");
+}

@@ -618,7 +618,7 @@ impl FirmwareLoop {
 
     /// One firmware tick with the encoders at `counts` (axis position); returns the wheel
     /// duties `[left, right]`.
-    #[inline]
+    #[inline(always)]
     pub fn read(&mut self, counts: i64) -> [I16F16; 2] {
         let raw = counts as u16; // the hardware counter keeps the low 16 bits
         let (l, r) = match self.kind {
@@ -691,26 +691,64 @@ impl Controller for FirmwareLoop {
         self.state.is_stalled()
     }
 
-    #[inline]
+    #[inline(always)]
     fn tick(&mut self, m: &Measurement) -> LoopOutput {
         let duty = self.read(m.counts);
         let axis = self.state.sample();
         let share = match self.kind {
-            AxisKind::Forward => 2.0 * duty[0].to_num::<f64>(),
-            AxisKind::Rotation => duty[1].to_num::<f64>() - duty[0].to_num::<f64>(),
+            AxisKind::Forward => 2.0 * f64_of_i16f16(duty[0]),
+            AxisKind::Rotation => f64_of_i16f16(duty[1]) - f64_of_i16f16(duty[0]),
         };
         let c = self.count_size;
-        let sp_counts: f64 = axis.setpoint.to_num();
-        let accel: f64 = self.state.profile().setpoint().accel.to_num();
+        let sp_counts = f64_of_i32f32(axis.setpoint);
+        let accel = f64_of_i32f32(self.state.profile().setpoint().accel);
         LoopOutput {
             setpoint: Setpoint {
                 position: (sp_counts + self.origin_counts as f64) * c,
-                speed: axis.speed.to_num::<f64>() * c * self.rate_hz,
+                speed: f64_of_i16f16(axis.speed) * c * self.rate_hz,
                 accel: accel * c * self.rate_hz * self.rate_hz,
             },
-            feedforward_volts: axis.feedforward.to_num(),
-            feedback_volts: axis.feedback.to_num(),
+            feedforward_volts: f64_of_i16f16(axis.feedforward),
+            feedback_volts: f64_of_i16f16(axis.feedback),
             command_volts: 0.5 * share * self.supply_volts,
+        }
+    }
+}
+
+/// `x.to_num::<f64>()` in one integer-to-float conversion and an exact scaling (the
+/// `fixed` crate's generic conversion builds the float bit by bit; this is the same value:
+/// every `i32` is exact in `f64`).
+#[inline(always)]
+fn f64_of_i16f16(x: I16F16) -> f64 {
+    f64::from(x.to_bits()) * (1.0 / 65536.0)
+}
+
+/// `x.to_num::<f64>()` the fast way: the `i64` bits rounded to the nearest `f64` (ties to
+/// even, as `fixed` rounds) and scaled exactly by 2^-32.
+#[inline(always)]
+fn f64_of_i32f32(x: I32F32) -> f64 {
+    x.to_bits() as f64 * (1.0 / 4_294_967_296.0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn fast_conversions_equal_the_fixed_crates() {
+        let mut x: u64 = 0x9e37_79b9_7f4a_7c15;
+        for _ in 0..100_000 {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            let a = I16F16::from_bits(x as i32);
+            let b = I32F32::from_bits(x as i64);
+            assert_eq!(f64_of_i16f16(a), a.to_num::<f64>());
+            assert_eq!(f64_of_i32f32(b), b.to_num::<f64>());
+        }
+        for b in [i64::MIN, i64::MAX, -1, 1, (1 << 53) + 1, -(1 << 60) - 3] {
+            let v = I32F32::from_bits(b);
+            assert_eq!(f64_of_i32f32(v), v.to_num::<f64>(), "{b}");
         }
     }
 }

@@ -207,6 +207,10 @@ impl MoveF64 {
     }
 }
 
+/// 2^-32: an `I32F32`'s bits to its value (exact scaling; the bits' conversion to `f64`
+/// rounds to nearest, ties to even, as `to_num::<f64>()` does).
+const TWO_POW_M32: f64 = 1.0 / 4_294_967_296.0;
+
 #[derive(Debug, Clone)]
 enum Reference {
     Step(f64),
@@ -328,9 +332,9 @@ impl Controller for IdealLoop {
                 let (c, f) = (*c, *f);
                 let sp = profile.step();
                 Setpoint {
-                    position: sp.position.to_num::<f64>() * c,
-                    speed: sp.speed.to_num::<f64>() * c * f,
-                    accel: sp.accel.to_num::<f64>() * c * f * f,
+                    position: sp.position.to_bits() as f64 * TWO_POW_M32 * c,
+                    speed: sp.speed.to_bits() as f64 * TWO_POW_M32 * c * f,
+                    accel: sp.accel.to_bits() as f64 * TWO_POW_M32 * c * f * f,
                 }
             }
         };
