@@ -343,7 +343,7 @@ pub fn quantize_lead(
 ) -> Result<QuantizedLead, QuantizeError> {
     check_units(units)?;
     let c = units.count_size;
-    if !(design.a1.abs() < 1.0) {
+    if design.a1.is_nan() || design.a1.abs() >= 1.0 {
         return Err(QuantizeError {
             constant: "a1",
             value: design.a1,
@@ -411,8 +411,8 @@ pub fn quantize_design(
 }
 
 /// A stall guard in user units: it trips when |tracking error| exceeds `limit` (units,
-/// > 0) for `time_s` seconds (rounded to whole ticks, at least 1, at most 65535), converted
-/// to counts (`limit / count_size`, `I16F16`) and ticks.
+/// positive) for `time_s` seconds (rounded to whole ticks, 1 ..= 65535), converted to
+/// counts (`limit / count_size`, `I16F16`) and ticks.
 ///
 /// ```
 /// use ctrl_design::sim::{stall_guard, FirmwareUnits};

@@ -211,6 +211,9 @@ impl MoveF64 {
 /// rounds to nearest, ties to even, as `to_num::<f64>()` does).
 const TWO_POW_M32: f64 = 1.0 / 4_294_967_296.0;
 
+// One per run, read every tick: a box would add a pointer chase per tick to save bytes
+// that do not matter here.
+#[allow(clippy::large_enum_variant)]
 #[derive(Debug, Clone)]
 enum Reference {
     Step(f64),
