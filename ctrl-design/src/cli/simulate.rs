@@ -342,11 +342,16 @@ impl SimArgs {
         )?;
         let feedforward = (!self.no_feedforward).then(|| Feedforward::for_plant(&plant));
         let design = if let (Some(wc), Some(pm)) = (self.crossover, self.phase_margin) {
-            let lead = tune::design_lead(&plant, wc, pm)
-                .map_err(|e| CliError::bad_input(format!("lead design refused: {e}")))?;
-            let coeffs = lead
-                .discretize(self.rate)
-                .map_err(|e| CliError::bad_input(format!("lead discretisation refused: {e}")))?;
+            let lead = tune::design_lead(&plant, wc, pm).map_err(|e| {
+                CliError::bad_input(format!(
+                    "--crossover / --phase-margin: lead design refused: {e}"
+                ))
+            })?;
+            let coeffs = lead.discretize(self.rate).map_err(|e| {
+                CliError::bad_input(format!(
+                    "--rate / --crossover: lead discretisation refused: {e}"
+                ))
+            })?;
             AxisDesign::Lead(LeadLoopDesign::from_coeffs(&coeffs, feedforward))
         } else if let (Some(b0), Some(b1), Some(a1)) = (self.lead_b0, self.lead_b1, self.lead_a1) {
             if !(b0.is_finite() && b0 != 0.0) {
