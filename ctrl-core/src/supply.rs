@@ -51,6 +51,11 @@ pub struct Supply {
 pub struct SupplyState {
     battery_volts: I16F16,
     reciprocal: Coeff,
+    /// For a reciprocal shift `s > 16` (every reading above about 4 V): `2^(s-17)` and
+    /// `s - 16`, the rounding addend and final shift of the multiply, so the two per-tick
+    /// duty multiplies do not rederive them; `wide_shift == 0` selects the general multiply.
+    wide_add: i32,
+    wide_shift: u32,
     low: bool,
 }
 
@@ -72,6 +77,8 @@ impl SupplyState {
         SupplyState {
             battery_volts: I16F16::ZERO,
             reciprocal: Coeff::ZERO,
+            wide_add: 0,
+            wide_shift: 0,
             low: true,
         }
     }
@@ -130,7 +137,18 @@ impl SupplyState {
     /// ```
     #[inline(always)]
     pub const fn duty(&self, volts: I16F16) -> I16F16 {
-        clamp_sym(self.reciprocal.saturating_mul(volts), I16F16::ONE)
+        let prod = if self.wide_shift != 0 {
+            // The `s > 16` branch of `Coeff::saturating_mul` with its shift-derived constants
+            // read from the state (same result bit for bit; `wide_shift` is in 1..=31).
+            let m = self.reciprocal.mantissa();
+            let xb = volts.to_bits();
+            let p1 = m * (xb >> 16);
+            let p0 = m * (xb & 0xFFFF);
+            I16F16::from_bits((p1 + (p0 >> 16) + self.wide_add).wrapping_shr(self.wide_shift))
+        } else {
+            self.reciprocal.saturating_mul(volts)
+        };
+        clamp_sym(prod, I16F16::ONE)
     }
 }
 
@@ -173,6 +191,12 @@ impl Supply {
     pub fn set_battery(&self, state: &mut SupplyState, volts: I16F16) {
         state.battery_volts = volts;
         state.reciprocal = reciprocal(volts);
+        let s = state.reciprocal.shift();
+        (state.wide_add, state.wide_shift) = if s > 16 {
+            (1 << (s - 17), s - 16)
+        } else {
+            (0, 0)
+        };
         state.low = volts < self.low_volts || state.reciprocal == Coeff::ZERO;
     }
 }
@@ -233,5 +257,42 @@ mod tests {
         }
         assert_eq!(reciprocal(I16F16::ZERO), Coeff::ZERO);
         assert_eq!(reciprocal(I16F16::MIN), Coeff::ZERO);
+    }
+
+    /// The duty fast path against the exact product in `i128` (round half up of
+    /// `mantissa * volts / 2^shift`, saturated, then clamped to `[-1, 1]`), over batteries
+    /// from 0.5 V to 40 V (both multiply branches) and volts across the whole `I16F16` range.
+    #[test]
+    fn duty_is_the_exact_rounded_product() {
+        let mut checked = 0;
+        let mut b = 0.5f64;
+        while b < 40.0 {
+            let mut st = SupplyState::new();
+            Supply::new(I16F16::ZERO).set_battery(&mut st, I16F16::from_num(b));
+            let c = st.reciprocal();
+            let mut xb: i64 = i32::MIN as i64;
+            while xb <= i32::MAX as i64 {
+                for x in [xb, xb + 1, -xb - 1, 0x7FFF, -0x8000, 0x1_0000] {
+                    let x = x.clamp(i32::MIN as i64, i32::MAX as i64) as i32;
+                    let prod = c.mantissa() as i128 * x as i128;
+                    let s = c.shift();
+                    let r = if s == 0 {
+                        prod
+                    } else {
+                        (prod + (1i128 << (s - 1))) >> s
+                    };
+                    let want = r.clamp(-65536, 65536) as i32;
+                    assert_eq!(
+                        st.duty(I16F16::from_bits(x)).to_bits(),
+                        want,
+                        "battery {b} V, volts bits {x}"
+                    );
+                    checked += 1;
+                }
+                xb += 7_777_777;
+            }
+            b *= 1.071;
+        }
+        assert!(checked > 10_000);
     }
 }
