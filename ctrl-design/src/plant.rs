@@ -44,7 +44,10 @@ impl fmt::Display for PlantError {
                 field,
                 value,
                 valid,
-            } => write!(f, "plant {field} = {value} is out of range: valid is {valid}"),
+            } => write!(
+                f,
+                "plant {field} = {value} is out of range: valid is {valid}"
+            ),
         }
     }
 }
@@ -75,7 +78,12 @@ impl Plant {
                 })
             }
         };
-        check("gain", gain, gain > 0.0, "finite and > 0 (units/s per volt)")?;
+        check(
+            "gain",
+            gain,
+            gain > 0.0,
+            "finite and > 0 (units/s per volt)",
+        )?;
         check(
             "time_constant_s",
             time_constant_s,
