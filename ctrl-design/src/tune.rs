@@ -819,8 +819,13 @@ pub struct ProfileShape {
     pub total_time_s: f64,
 }
 
-/// Shape and timing of a move over `distance` (> 0) with symmetric acceleration `accel`,
-/// from `start_speed` to `end_speed` (both in `[0, cruise]`).
+/// Shape and timing of a move over `distance` with symmetric acceleration `accel`, from
+/// `start_speed` to `end_speed` (both in `[0, cruise]`).
+///
+/// `distance` may be negative (a move backwards) or zero: the shape and times depend only on
+/// `|distance|`, and every speed here (inputs and `peak_speed`) is a magnitude along the
+/// direction of motion, as in `ctrl-core`'s `Move`. A zero distance is feasible only when the
+/// end speed equals the start speed (0 s).
 ///
 /// Trapezoid when `distance >= (vc^2 - v0^2) / 2a + (vc^2 - v1^2) / 2a`, else triangle with
 /// peak `sqrt(a d + (v0^2 + v1^2) / 2)`. An end speed outside
@@ -836,8 +841,8 @@ pub fn profile_shape(
     check(
         "distance",
         distance,
-        distance > 0.0,
-        "finite and > 0 (units)",
+        true,
+        "finite (units; the sign is the direction)",
     )?;
     check(
         "cruise_speed",
@@ -852,7 +857,7 @@ pub fn profile_shape(
         (0.0..=cruise_speed).contains(&start_speed),
         &format!("in [0, cruise speed = {cruise_speed}] units/s"),
     )?;
-    let (v0, vc, a, d) = (start_speed, cruise_speed, accel, distance);
+    let (v0, vc, a, d) = (start_speed, cruise_speed, accel, distance.abs());
     let lo = (v0 * v0 - 2.0 * a * d).max(0.0).sqrt();
     let hi = vc.min((v0 * v0 + 2.0 * a * d).sqrt());
     if !(end_speed.is_finite() && end_speed >= lo && end_speed <= hi) {

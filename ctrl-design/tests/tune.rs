@@ -252,6 +252,24 @@ fn profile_shapes() {
 }
 
 #[test]
+fn profile_shape_backwards_and_zero_distance() {
+    // A move backwards has the same shape and times as the same move forwards; speeds are
+    // magnitudes along the motion (as in ctrl-core's Move).
+    for d in [100.0, 500.0, 3.0] {
+        let fwd = tune::profile_shape(d, 400.0, 1200.0, 50.0, 20.0).unwrap();
+        let back = tune::profile_shape(-d, 400.0, 1200.0, 50.0, 20.0).unwrap();
+        assert_eq!(fwd, back, "distance {d}");
+    }
+    // Zero distance from rest: nothing to do, 0 s.
+    let z = tune::profile_shape(0.0, 400.0, 1200.0, 0.0, 0.0).unwrap();
+    assert_eq!(z.total_time_s, 0.0);
+    assert_eq!(z.peak_speed, 0.0);
+    // Zero distance cannot change the speed.
+    assert!(tune::profile_shape(0.0, 400.0, 1200.0, 0.0, 10.0).is_err());
+    assert!(tune::profile_shape(f64::NAN, 400.0, 1200.0, 0.0, 0.0).is_err());
+}
+
+#[test]
 fn encoder_step_and_suggested_filter() {
     let p = forward();
     let d = tune::design_pd(&p, 0.8, 0.3, SettlingBand::TWO_PERCENT).unwrap();

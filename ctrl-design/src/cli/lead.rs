@@ -12,25 +12,25 @@ use std::fmt::Write as _;
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// Plant gain K, units/s per volt.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub plant_gain: f64,
     /// Plant time constant T, seconds.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub time_constant: f64,
     /// Friction bias, volts (for the feedforward output).
-    #[arg(long, default_value_t = 0.0)]
+    #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
     pub bias: f64,
     /// Loop crossover frequency, rad/s.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub crossover: f64,
     /// Phase margin at the crossover, degrees.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub phase_margin: f64,
     /// Settling band, percent of the final value.
-    #[arg(long, default_value_t = 2.0)]
+    #[arg(long, default_value_t = 2.0, allow_negative_numbers = true)]
     pub band: f64,
     /// Loop rate, Hz: adds the coefficients and the discrete blocks.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub rate: Option<f64>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Text)]

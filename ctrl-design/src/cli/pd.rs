@@ -12,32 +12,33 @@ use std::fmt::Write as _;
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// Plant gain K, units/s per volt.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub plant_gain: f64,
     /// Plant time constant T, seconds.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub time_constant: f64,
     /// Friction bias, volts (for the feedforward output).
-    #[arg(long, default_value_t = 0.0)]
+    #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
     pub bias: f64,
     /// Damping ratio of the placed poles (pole-placement mode).
     #[arg(
         long,
+        allow_negative_numbers = true,
         required_unless_present = "overshoot",
         conflicts_with = "overshoot"
     )]
     pub damping: Option<f64>,
     /// Target overshoot, percent: switches to target-meeting mode (needs --rate).
-    #[arg(long, requires = "rate")]
+    #[arg(long, requires = "rate", allow_negative_numbers = true)]
     pub overshoot: Option<f64>,
     /// Settling time, seconds.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub settling_time: f64,
     /// Settling band, percent of the final value.
-    #[arg(long, default_value_t = 2.0)]
+    #[arg(long, default_value_t = 2.0, allow_negative_numbers = true)]
     pub band: f64,
     /// Loop rate, Hz: adds the discrete blocks.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub rate: Option<f64>,
     /// Where the derivative is taken.
     #[arg(long, value_enum, default_value_t = Derivative::Error)]
@@ -46,16 +47,16 @@ pub struct Args {
     #[arg(long)]
     pub with_delay: bool,
     /// Encoder count size, units (for the encoder check).
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub count_size: Option<f64>,
     /// Cruise speed of the fastest move, units/s (for the per-tick and supply checks).
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub cruise_speed: Option<f64>,
     /// Acceleration of the fastest move, units/s^2 (for the supply check).
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub accel: Option<f64>,
     /// Lowest supply voltage, V (for the encoder-step and move-voltage checks).
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub supply_min: Option<f64>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Text)]

@@ -11,25 +11,25 @@ use std::fmt::Write as _;
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// Plant gain K, units/s per volt.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub plant_gain: f64,
     /// Plant time constant T, seconds.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub time_constant: f64,
     /// Friction bias, volts (for the feedforward output).
-    #[arg(long, default_value_t = 0.0)]
+    #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
     pub bias: f64,
     /// Closed-loop -3 dB bandwidth of the speed loop, rad/s.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub bandwidth: f64,
     /// Damping ratio of the closed-loop poles.
-    #[arg(long, default_value_t = 0.8)]
+    #[arg(long, default_value_t = 0.8, allow_negative_numbers = true)]
     pub damping: f64,
     /// Settling band, percent of the final value.
-    #[arg(long, default_value_t = 2.0)]
+    #[arg(long, default_value_t = 2.0, allow_negative_numbers = true)]
     pub band: f64,
     /// Loop rate, Hz: adds the per-tick gain and the discrete blocks.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub rate: Option<f64>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Text)]

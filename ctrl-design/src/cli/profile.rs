@@ -9,31 +9,31 @@ use std::fmt::Write as _;
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// Move distance, units (> 0).
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub distance: f64,
     /// Cruise speed, units/s.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub cruise_speed: f64,
     /// Acceleration (and deceleration), units/s^2.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub accel: f64,
     /// Speed at the start, units/s.
-    #[arg(long, default_value_t = 0.0)]
+    #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
     pub start_speed: f64,
     /// Speed at the end, units/s.
-    #[arg(long, default_value_t = 0.0)]
+    #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
     pub end_speed: f64,
     /// Plant gain K (with --time-constant and --supply-min: checks the move's peak voltage).
-    #[arg(long, requires_all = ["time_constant", "supply_min"])]
+    #[arg(long, requires_all = ["time_constant", "supply_min"], allow_negative_numbers = true)]
     pub plant_gain: Option<f64>,
     /// Plant time constant T, seconds.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub time_constant: Option<f64>,
     /// Friction bias, volts.
-    #[arg(long, default_value_t = 0.0)]
+    #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
     pub bias: f64,
     /// Lowest supply voltage, V.
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub supply_min: Option<f64>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Text)]
