@@ -59,6 +59,67 @@ pub fn firmware_elf(target_dir: &Path) -> PathBuf {
     target_dir.join("thumbv7m-none-eabi/release/demo-firmware")
 }
 
+/// The Rust target the demo firmware builds for (its `.cargo/config.toml`).
+pub const FIRMWARE_TARGET: &str = "thumbv7m-none-eabi";
+
+/// `true` when the firmware's target is installed in the toolchain that runs the tests
+/// (`rustc --print target-libdir --target thumbv7m-none-eabi` exists).
+pub fn firmware_target_installed() -> bool {
+    target_installed(FIRMWARE_TARGET)
+}
+
+/// `true` when `target`'s `core` library is installed in the toolchain running the tests.
+pub fn target_installed(target: &str) -> bool {
+    let rustc = std::env::var_os("RUSTC").unwrap_or_else(|| "rustc".into());
+    Command::new(rustc)
+        .args(["--print", "target-libdir", "--target", target])
+        .output()
+        .ok()
+        .filter(|o| o.status.success())
+        .map(|o| {
+            // rustc prints the folder even when the target is not installed: look for core.
+            let dir = String::from_utf8_lossy(&o.stdout).trim().to_string();
+            std::fs::read_dir(&dir)
+                .map(|mut d| {
+                    d.any(|e| {
+                        e.is_ok_and(|e| e.file_name().to_string_lossy().starts_with("libcore-"))
+                    })
+                })
+                .unwrap_or(false)
+        })
+        .unwrap_or(false)
+}
+
+/// Whether a firmware test can run here: the firmware target must be installed, and with
+/// `need_qemu` also `qemu-system-arm`. When something is missing the test should skip
+/// (this prints why and returns `false`), unless `CTRL_REQUIRE_QEMU=1` (set by CI), which
+/// turns the skip into a failure.
+pub fn firmware_prerequisites(need_qemu: bool) -> bool {
+    let mut missing = Vec::new();
+    if !firmware_target_installed() {
+        missing.push(format!(
+            "the Rust target {FIRMWARE_TARGET} (rustup target add {FIRMWARE_TARGET})"
+        ));
+    }
+    if need_qemu && !qemu_available() {
+        missing.push("qemu-system-arm (apt-get install qemu-system-arm)".to_string());
+    }
+    if missing.is_empty() {
+        return true;
+    }
+    let required = std::env::var("CTRL_REQUIRE_QEMU").is_ok_and(|v| v == "1");
+    assert!(
+        !required,
+        "missing {}, and CTRL_REQUIRE_QEMU=1 says the firmware tests must run",
+        missing.join(" and ")
+    );
+    eprintln!(
+        "skip: missing {} (set CTRL_REQUIRE_QEMU=1 to fail instead)",
+        missing.join(" and ")
+    );
+    false
+}
+
 /// `true` when `qemu-system-arm` can be started.
 pub fn qemu_available() -> bool {
     Command::new("qemu-system-arm")
@@ -187,5 +248,25 @@ mod tests {
         assert_eq!(m[0].index, 3);
         assert_eq!(m[0].get("axis"), Some("forward"));
         assert_eq!(m[0].num("final_error_counts"), -0.5);
+    }
+}
+
+#[cfg(test)]
+mod target_check {
+    use super::target_installed;
+
+    #[test]
+    fn target_check_tells_installed_from_missing() {
+        // The host target is always installed (the tests run on it); a made-up one never is.
+        let host = std::process::Command::new("rustc")
+            .args(["-vV"])
+            .output()
+            .expect("rustc runs");
+        let host = String::from_utf8_lossy(&host.stdout)
+            .lines()
+            .find_map(|l| l.strip_prefix("host: ").map(str::to_string))
+            .expect("rustc -vV names the host");
+        assert!(target_installed(&host), "{host}");
+        assert!(!target_installed("armv0-nowhere-none-eabi"));
     }
 }

@@ -20,8 +20,8 @@ use std::time::Duration;
 use ctrl_design::emit::{self, emit, AxisReport, Emission};
 use ctrl_design::sim;
 use ctrl_tests::{
-    build_firmware, firmware_elf, firmware_target_dir, parse_moves, qemu_available, rover_dir,
-    run_qemu, MoveReport,
+    build_firmware, firmware_elf, firmware_prerequisites, firmware_target_dir, parse_moves,
+    rover_dir, run_qemu, MoveReport,
 };
 
 /// Largest |firmware - host| final tracking error, counts.
@@ -42,15 +42,7 @@ fn host_move(e: &Emission, r: &AxisReport, distance: f64) -> sim::Metrics {
 
 #[test]
 fn firmware_route_under_qemu_matches_the_host_simulation() {
-    if !qemu_available() {
-        let required = std::env::var("CTRL_REQUIRE_QEMU").is_ok_and(|v| v == "1");
-        assert!(
-            !required,
-            "qemu-system-arm is not installed, and CTRL_REQUIRE_QEMU=1 says it must be"
-        );
-        eprintln!(
-            "skip: qemu-system-arm is not installed (set CTRL_REQUIRE_QEMU=1 to fail instead)"
-        );
+    if !firmware_prerequisites(true) {
         return;
     }
     let target = firmware_target_dir("tests");
@@ -115,6 +107,9 @@ fn firmware_route_under_qemu_matches_the_host_simulation() {
 
 #[test]
 fn build_script_watches_the_design_and_every_log() {
+    if !firmware_prerequisites(false) {
+        return;
+    }
     let target = firmware_target_dir("tests");
     let out = build_firmware(None, &target);
     assert!(

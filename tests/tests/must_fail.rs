@@ -2,10 +2,13 @@
 //! so long that Kd would be negative) must stop the firmware build, with a message that
 //! names the file, the line, the key and the longest settling time allowed.
 
-use ctrl_tests::{build_firmware, firmware_target_dir, rover_dir};
+use ctrl_tests::{build_firmware, firmware_prerequisites, firmware_target_dir, rover_dir};
 
 #[test]
 fn must_fail_design_refuses_to_build_for_the_right_reason() {
+    if !firmware_prerequisites(false) {
+        return;
+    }
     let design = rover_dir().join("must_fail.toml");
     let src = std::fs::read_to_string(&design).expect("must_fail.toml");
     let at = src
