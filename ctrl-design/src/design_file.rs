@@ -52,6 +52,8 @@ pub const KEYS: &[KeyInfo] = &[
     KeyInfo { key: "drive.track_width_mm", unit: "mm", valid: "greater than 0, at most 10000", meaning: "distance between the two wheels' contact points" },
     KeyInfo { key: "drive.encoder_counts_per_rev", unit: "counts", valid: "integer 1 to 1000000", meaning: "encoder counts per wheel revolution (after any quadrature multiplication)" },
     KeyInfo { key: "drive.encoder_counter_bits", unit: "bits", valid: "integer 16 to 32", meaning: "width of the hardware encoder counter (it wraps); ctrl-core reads its low 16 bits, so narrower counters are refused" },
+    KeyInfo { key: "drive.invert_left_encoder", unit: "true/false", valid: "optional, default false", meaning: "the left encoder counts down when the left wheel drives the robot forward (mirrored motor mounting)" },
+    KeyInfo { key: "drive.invert_right_encoder", unit: "true/false", valid: "optional, default false", meaning: "the right encoder counts down when the right wheel drives the robot forward" },
     KeyInfo { key: "supply.lowest_volts", unit: "V", valid: "greater than 0, at most 100", meaning: "lowest battery voltage the design must work at" },
     KeyInfo { key: "supply.highest_volts", unit: "V", valid: "at least supply.lowest_volts, at most 100", meaning: "highest (full-charge) battery voltage" },
     KeyInfo { key: "<axis>.plant.gain", unit: "unit/s per V", valid: "greater than 0, at most 1e6", meaning: "steady speed per volt above the bias" },
@@ -182,6 +184,10 @@ pub struct Drive {
     pub encoder_counts_per_rev: u32,
     /// Width of the hardware encoder counter, bits.
     pub encoder_counter_bits: u32,
+    /// The left encoder counts down when its wheel drives the robot forward.
+    pub invert_left_encoder: bool,
+    /// The right encoder counts down when its wheel drives the robot forward.
+    pub invert_right_encoder: bool,
 }
 
 impl Drive {
@@ -440,6 +446,8 @@ struct RawDrive {
     track_width_mm: Spanned<f64>,
     encoder_counts_per_rev: Spanned<i64>,
     encoder_counter_bits: Spanned<i64>,
+    invert_left_encoder: Option<Spanned<bool>>,
+    invert_right_encoder: Option<Spanned<bool>>,
 }
 
 #[derive(Deserialize)]
@@ -690,6 +698,17 @@ impl Validator<'_> {
         x
     }
 
+    /// An optional `true`/`false` key (default `false`); TOML itself refuses other values.
+    fn flag(&mut self, key: &str, v: &Option<Spanned<bool>>) -> bool {
+        match v {
+            Some(v) => {
+                self.mark(key, v);
+                *v.get_ref()
+            }
+            None => false,
+        }
+    }
+
     fn int(&mut self, key: &str, v: &Spanned<i64>, lo: i64, hi: i64) -> u32 {
         self.mark(key, v);
         let x = *v.get_ref();
@@ -756,6 +775,8 @@ impl Validator<'_> {
                 16,
                 32,
             ),
+            invert_left_encoder: self.flag("drive.invert_left_encoder", &d.invert_left_encoder),
+            invert_right_encoder: self.flag("drive.invert_right_encoder", &d.invert_right_encoder),
         };
 
         self.mark("supply", &raw.supply);

@@ -1557,7 +1557,16 @@ fn render(
     let _ = writeln!(w);
     let _ = writeln!(
         w,
-        "/// The two-axis drive: encoders (both counting forward), both axes, supply compensation"
+        "/// The two-axis drive: encoders ({}), both axes, supply compensation",
+        match (
+            design.drive.invert_left_encoder,
+            design.drive.invert_right_encoder
+        ) {
+            (false, false) => "both counting forward",
+            (true, false) => "left inverted",
+            (false, true) => "right inverted",
+            (true, true) => "both inverted",
+        }
     );
     let _ = writeln!(w, "/// and the wheel voltage cap.");
     let low = find(constants, "supply_lowest_volts");
@@ -1566,7 +1575,11 @@ fn render(
         w,
         "pub const DRIVE: ::ctrl_core::drive::TwoAxisDrive = ::ctrl_core::drive::TwoAxisDrive::new("
     );
-    let _ = writeln!(w, "    ::ctrl_core::encoder::Encoders::new(false, false),");
+    let _ = writeln!(
+        w,
+        "    ::ctrl_core::encoder::Encoders::new({}, {}),",
+        design.drive.invert_left_encoder, design.drive.invert_right_encoder
+    );
     let _ = writeln!(w, "    FORWARD_AXIS,");
     let _ = writeln!(w, "    ROTATION_AXIS,");
     let _ = writeln!(

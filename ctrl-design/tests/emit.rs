@@ -365,3 +365,33 @@ fn missing_file_is_an_error() {
     let f = emit(Path::new("/nonexistent/rover.toml")).unwrap_err();
     assert!(f.to_string().contains("/nonexistent/rover.toml"));
 }
+
+#[test]
+fn encoder_direction_keys_reach_the_drive_constant() {
+    // Default: both encoders count forward.
+    let plain = ok("enc-default", DESIGN);
+    assert!(plain
+        .source
+        .contains("::ctrl_core::encoder::Encoders::new(false, false),"));
+    assert!(!plain.design.drive.invert_left_encoder && !plain.design.drive.invert_right_encoder);
+    // A mirrored left motor: the left encoder counts down when driving forward.
+    let src = DESIGN.replace(
+        "encoder_counter_bits = 16\n",
+        "encoder_counter_bits = 16\ninvert_left_encoder = true\n",
+    );
+    let e = ok("enc-left", &src);
+    assert!(e.design.drive.invert_left_encoder && !e.design.drive.invert_right_encoder);
+    assert!(e
+        .source
+        .contains("::ctrl_core::encoder::Encoders::new(true, false),"));
+    assert!(e.source.contains("encoders (left inverted)"));
+    // Not a boolean: refused at its line, naming the key.
+    let bad = DESIGN.replace(
+        "encoder_counter_bits = 16\n",
+        "encoder_counter_bits = 16\ninvert_right_encoder = \"yes\"\n",
+    );
+    let (_, text) = refused("enc-bad", &bad);
+    let line = line_of(&bad, "invert_right_encoder");
+    assert!(text.contains(&format!("rover.toml:{line}")), "{text}");
+    assert!(text.contains("invert_right_encoder"), "{text}");
+}
