@@ -2,24 +2,18 @@
 //! Tustin coefficients (pre-warped at the crossover) and the response report.
 
 use super::pd::{
-    band_from, design_error, emit, plant_from, positive, print_json, report_table, report_warnings,
+    band_from, design_error, emit, positive, print_json, report_table, report_warnings,
 };
-use super::{CliError, Format};
+use super::{to_value, CliError, Format, PlantArgs};
 use ctrl_design::{analysis, tune};
 use std::fmt::Write as _;
 
 /// Arguments of `ctrl-design lead`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Plant gain K, units/s per volt.
-    #[arg(long, allow_negative_numbers = true)]
-    pub plant_gain: f64,
-    /// Plant time constant T, seconds.
-    #[arg(long, allow_negative_numbers = true)]
-    pub time_constant: f64,
-    /// Friction bias, volts (for the feedforward output).
-    #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
-    pub bias: f64,
+    /// The plant: gain, time constant, friction bias.
+    #[command(flatten)]
+    pub plant: PlantArgs,
     /// Loop crossover frequency, rad/s.
     #[arg(long, allow_negative_numbers = true)]
     pub crossover: f64,
@@ -37,13 +31,9 @@ pub struct Args {
     pub format: Format,
 }
 
-fn to_value<T: serde::Serialize>(v: &T) -> serde_json::Value {
-    serde_json::to_value(v).unwrap_or(serde_json::Value::Null)
-}
-
 /// Runs the subcommand.
 pub fn run(args: Args) -> Result<(), CliError> {
-    let plant = plant_from(args.plant_gain, args.time_constant, args.bias)?;
+    let plant = args.plant.plant()?;
     let band = band_from(args.band)?;
     positive("--rate", args.rate, "Hz")?;
     let d = tune::design_lead(&plant, args.crossover, args.phase_margin).map_err(design_error)?;

@@ -57,3 +57,29 @@ pub enum Format {
     /// One JSON object on stdout.
     Json,
 }
+
+/// The plant flags shared by `pd`, `lead` and `pi`.
+#[derive(Debug, Clone, clap::Args)]
+pub struct PlantArgs {
+    /// Plant gain K, units/s per volt.
+    #[arg(long, allow_negative_numbers = true)]
+    pub plant_gain: f64,
+    /// Plant time constant T, seconds.
+    #[arg(long, allow_negative_numbers = true)]
+    pub time_constant: f64,
+    /// Friction bias, volts (for the feedforward output).
+    #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
+    pub bias: f64,
+}
+
+impl PlantArgs {
+    /// The checked plant, or exit 2 naming the flag and its valid range.
+    pub fn plant(&self) -> Result<ctrl_design::Plant, CliError> {
+        pd::plant_from(self.plant_gain, self.time_constant, self.bias)
+    }
+}
+
+/// A serializable value as JSON (`null` if it cannot be represented).
+pub fn to_value<T: serde::Serialize>(v: &T) -> serde_json::Value {
+    serde_json::to_value(v).unwrap_or(serde_json::Value::Null)
+}

@@ -2,7 +2,7 @@
 //! gains that meet the targets in the actual discrete loop), with its actual response,
 //! margins, feedforward and loop-rate/encoder checks.
 
-use super::{CliError, Format};
+use super::{to_value, CliError, Format, PlantArgs};
 use ctrl_design::analysis::{self, DerivativeOn, LoopFigures, ResponseReport, SettlingBand};
 use ctrl_design::tune::{self, DesignError};
 use ctrl_design::Plant;
@@ -11,15 +11,9 @@ use std::fmt::Write as _;
 /// Arguments of `ctrl-design pd`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Plant gain K, units/s per volt.
-    #[arg(long, allow_negative_numbers = true)]
-    pub plant_gain: f64,
-    /// Plant time constant T, seconds.
-    #[arg(long, allow_negative_numbers = true)]
-    pub time_constant: f64,
-    /// Friction bias, volts (for the feedforward output).
-    #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
-    pub bias: f64,
+    /// The plant: gain, time constant, friction bias.
+    #[command(flatten)]
+    pub plant: PlantArgs,
     /// Damping ratio of the placed poles (pole-placement mode).
     #[arg(
         long,
@@ -238,13 +232,9 @@ pub(crate) fn print_json(v: &serde_json::Value) -> Result<(), CliError> {
     emit(&(s + "\n"))
 }
 
-fn to_value<T: serde::Serialize>(v: &T) -> serde_json::Value {
-    serde_json::to_value(v).unwrap_or(serde_json::Value::Null)
-}
-
 /// Runs the subcommand.
 pub fn run(args: Args) -> Result<(), CliError> {
-    let plant = plant_from(args.plant_gain, args.time_constant, args.bias)?;
+    let plant = args.plant.plant()?;
     let band = band_from(args.band)?;
     positive("--rate", args.rate, "Hz")?;
     positive("--count-size", args.count_size, "units")?;
