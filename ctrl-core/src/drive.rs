@@ -84,8 +84,9 @@ pub struct AxisSample {
     pub feedback: I16F16,
 }
 
-/// State of one axis: its profile, feedback history, stall guard and the offset between the
-/// profile's frame and the encoder frame (changed only by a fault clear).
+/// State of one axis: its profile (in the encoder frame: setpoint and measured positions are
+/// the same kind of number), feedback history, stall guard and the last tick's error and
+/// voltages.
 ///
 /// ```
 /// use ctrl_core::drive::AxisState;
@@ -98,8 +99,9 @@ pub struct AxisState {
     pd: PdState,
     lead: LeadState,
     stall: StallState,
-    offset: I32F32,
-    sample: AxisSample,
+    error: I16F16,
+    feedforward: I16F16,
+    feedback: I16F16,
 }
 
 impl Default for AxisState {
@@ -121,14 +123,9 @@ impl AxisState {
             pd: PdState::new(),
             lead: LeadState::new(),
             stall: StallState::new(),
-            offset: I32F32::ZERO,
-            sample: AxisSample {
-                setpoint: I32F32::ZERO,
-                speed: I16F16::ZERO,
-                error: I16F16::ZERO,
-                feedforward: I16F16::ZERO,
-                feedback: I16F16::ZERO,
-            },
+            error: I16F16::ZERO,
+            feedforward: I16F16::ZERO,
+            feedback: I16F16::ZERO,
         }
     }
 
@@ -188,12 +185,21 @@ impl AxisState {
     /// assert_eq!(AxisState::new().sample().feedback, fixed::types::I16F16::ZERO);
     /// ```
     pub const fn sample(&self) -> AxisSample {
-        self.sample
+        // Setpoint and speed are read back from the profile (it holds them anyway), so the
+        // tick only stores what nothing else keeps.
+        let sp = self.profile.setpoint();
+        AxisSample {
+            setpoint: sp.position,
+            speed: narrow(sp.speed),
+            error: self.error,
+            feedforward: self.feedforward,
+            feedback: self.feedback,
+        }
     }
 
-    /// Clears the stall fault and restarts the axis where it stands: the profile holds, the
-    /// profile frame is shifted so that the tracking error is zero at `measured`, and the
-    /// feedback history is reset (no jump when the output comes back).
+    /// Clears the stall fault and restarts the axis where it stands: the profile is set at
+    /// rest at `measured` (so the tracking error is zero there; the next move starts from
+    /// it), and the feedback history is reset (no jump when the output comes back).
     ///
     /// ```
     /// use ctrl_core::drive::AxisState;
@@ -201,11 +207,13 @@ impl AxisState {
     /// let mut st = AxisState::new();
     /// st.clear_fault(I32F32::from_num(12));
     /// assert!(!st.is_stalled());
+    /// assert_eq!(st.profile().setpoint().position, I32F32::from_num(12));
+    /// assert!(st.profile().is_done());
     /// ```
     pub fn clear_fault(&mut self, measured: I32F32) {
         self.stall.clear();
-        self.profile.hold();
-        self.offset = measured.wrapping_sub(self.profile.setpoint().position);
+        self.profile = Profile::at(measured);
+        self.error = I16F16::ZERO;
         self.pd = PdState::new();
         self.lead = LeadState::new();
     }
@@ -295,8 +303,7 @@ impl Axis {
     ) -> I16F16 {
         let sp = state.profile.step();
         // Wrapping, like the encoder positions: exact while |positions| < 2^30 counts.
-        let here = measured.wrapping_sub(state.offset);
-        let error = narrow(sp.position.wrapping_sub(here));
+        let error = narrow(sp.position.wrapping_sub(measured));
         let speed = narrow(sp.speed);
         let ff = self.feedforward.volts(speed, narrow(sp.accel));
         let fb = match &self.feedback {
@@ -304,13 +311,9 @@ impl Axis {
             Feedback::Lead(lead) => lead.update(&mut state.lead, error),
         };
         self.stall.update(&mut state.stall, error);
-        state.sample = AxisSample {
-            setpoint: sp.position,
-            speed,
-            error,
-            feedforward: ff,
-            feedback: fb,
-        };
+        state.error = error;
+        state.feedforward = ff;
+        state.feedback = fb;
         ff.saturating_add(fb)
     }
 }
@@ -530,8 +533,8 @@ impl DriveState {
     pub const fn sample(&self) -> DriveSample {
         DriveSample {
             tick: self.tick,
-            forward: self.forward.sample,
-            rotation: self.rotation.sample,
+            forward: self.forward.sample(),
+            rotation: self.rotation.sample(),
             volts: self.volts,
             duty: self.duty,
             stalled: self.stalled,

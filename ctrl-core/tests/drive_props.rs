@@ -300,3 +300,69 @@ proptest! {
         prop_assert!(log[due..].iter().all(|x| x.2 && x.3 == [I16F16::ZERO; 2]), "latched, duty zero");
     }
 }
+
+/// After a stall is cleared the drive restarts where the robot stands: zero error and zero
+/// duty at once, and the next move is measured from there (it ends `distance` counts past
+/// the position where the fault was cleared, not past the old setpoint).
+#[test]
+fn clear_fault_restarts_where_the_robot_stands() {
+    let drive = rover_drive();
+    let mut st = DriveState::new();
+    drive.set_battery(&mut st, I16F16::from_num(7.4));
+    let k = 180.0 / (std::f64::consts::PI * 42.0 / 360.0) / 500.0;
+    let mut left = Wheel::new(k, 45.0, 0.7, 0.0);
+    let mut right = Wheel::new(k, 45.0, 0.7, 0.0);
+    let n = |x: f64| I32F32::from_num(x);
+    st.forward_mut()
+        .start(Move::new(n(3000.0), n(2.0), I32F32::ZERO, n(0.01)))
+        .unwrap();
+    let mut ticks = 0;
+    while !st.is_stalled() {
+        if ticks == 100 {
+            left.blocked = true;
+            right.blocked = true;
+        }
+        let duty = drive.tick(&mut st, left.raw(), right.raw());
+        left.step(fx(duty[0]) * 7.4);
+        right.step(fx(duty[1]) * 7.4);
+        ticks += 1;
+        assert!(ticks < 2000, "a blocked rover must trip the guard");
+    }
+    let stood = st.encoders().forward();
+    st.clear_fault();
+    assert!(!st.is_stalled());
+    let duty = drive.tick(&mut st, left.raw(), right.raw());
+    assert_eq!(
+        duty,
+        [I16F16::ZERO; 2],
+        "at rest where it stands: nothing to correct"
+    );
+    assert_eq!(st.sample().forward.error, I16F16::ZERO);
+    assert_eq!(st.forward().profile().setpoint().position, stood);
+    // Free the wheels and drive 200 counts on from there.
+    left.blocked = false;
+    right.blocked = false;
+    st.forward_mut()
+        .start(Move::new(n(200.0), n(2.0), I32F32::ZERO, n(0.01)))
+        .unwrap();
+    for _ in 0..1500 {
+        let duty = drive.tick(&mut st, left.raw(), right.raw());
+        left.step(fx(duty[0]) * 7.4);
+        right.step(fx(duty[1]) * 7.4);
+    }
+    assert!(!st.is_stalled());
+    assert_eq!(
+        st.forward().profile().setpoint().position,
+        stood + n(200.0),
+        "the move is measured from where the fault was cleared"
+    );
+    let moved = fx_wide(st.encoders().forward() - stood);
+    assert!(
+        (moved - 200.0).abs() < 3.0,
+        "the rover followed: moved {moved} counts"
+    );
+}
+
+fn fx_wide(x: I32F32) -> f64 {
+    x.to_num()
+}
