@@ -266,6 +266,31 @@ fn axis_lead_fixed(b: &mut Bench) {
     s.out[0] = AXIS_ROT.update(&mut s.axis_lead, s.measured, I16F16::from_bits(1 << 16));
 }
 
+/// What every error-fed part pays before its own work: reading the next input and storing
+/// the output. Subtract it from a `part_*` figure for the part's own instructions.
+#[inline(never)]
+fn input_only(b: &mut Bench) {
+    let s = &mut b.p;
+    s.out[0] = s.inputs.next_error();
+}
+
+/// One `Coeff` multiply with a coefficient below 0.5 (shift above 16: no saturation branch).
+#[inline(never)]
+fn mul_small(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error();
+    s.out[0] = c(0.3).saturating_mul(e);
+}
+
+/// One `Coeff` multiply with a coefficient of 4 (shift at most 16: the product can leave
+/// `I16F16`, so it carries the saturation test).
+#[inline(never)]
+fn mul_large(b: &mut Bench) {
+    let s = &mut b.p;
+    let e = s.inputs.next_error();
+    s.out[0] = c(4.0).saturating_mul(e);
+}
+
 /// Keeps a value observable (used by prototypes).
 #[allow(dead_code)]
 fn keep<T>(x: T) -> T {
@@ -305,6 +330,18 @@ pub static PATHS: &[Path] = &[
     Path {
         name: "drive_f32",
         tick: drive_f32,
+    },
+    Path {
+        name: "part_input",
+        tick: input_only,
+    },
+    Path {
+        name: "part_mul_small",
+        tick: mul_small,
+    },
+    Path {
+        name: "part_mul_large",
+        tick: mul_large,
     },
     Path {
         name: "part_encoders",
