@@ -279,7 +279,8 @@ fn input_only(b: &mut Bench) {
 fn mul_small(b: &mut Bench) {
     let s = &mut b.p;
     let e = s.inputs.next_error();
-    s.out[0] = c(0.3).saturating_mul(e);
+    const K: ctrl_core::Coeff = c(0.3);
+    s.out[0] = K.saturating_mul(e);
 }
 
 /// One `Coeff` multiply with a coefficient of 4 (shift at most 16: the product can leave
@@ -288,7 +289,8 @@ fn mul_small(b: &mut Bench) {
 fn mul_large(b: &mut Bench) {
     let s = &mut b.p;
     let e = s.inputs.next_error();
-    s.out[0] = c(4.0).saturating_mul(e);
+    const K: ctrl_core::Coeff = c(4.0);
+    s.out[0] = K.saturating_mul(e);
 }
 
 /// Keeps a value observable (used by prototypes).
