@@ -283,13 +283,13 @@ fn mul_small(b: &mut Bench) {
     s.out[0] = K.saturating_mul(e);
 }
 
-/// One `Coeff` multiply with a coefficient of 4 (shift at most 16: the product can leave
+/// One `Coeff` multiply with a coefficient of 3.7 (shift at most 16: the product can leave
 /// `I16F16`, so it carries the saturation test).
 #[inline(never)]
 fn mul_large(b: &mut Bench) {
     let s = &mut b.p;
     let e = s.inputs.next_error();
-    const K: ctrl_core::Coeff = c(4.0);
+    const K: ctrl_core::Coeff = c(3.7);
     s.out[0] = K.saturating_mul(e);
 }
 
