@@ -118,16 +118,47 @@
 //! loop rather than from the tick interrupt if the tick budget is tight. The planner has
 //! no panic paths (its divisions and products go through checked helpers).
 
-use fixed::types::I32F32;
+use fixed::types::{I16F16, I32F32};
 
 use crate::Error;
 
-/// Longest plan that [`Profile::start`] accepts, in ticks (2⁴⁰: about 70 years at 500 Hz).
+/// Longest plan that [`Profile::start`] accepts, in ticks: `u32::MAX` (2³² − 1, about
+/// 99 days at 500 Hz), so that the per-tick counters are 32-bit.
 ///
 /// ```
-/// assert_eq!(ctrl_core::profile::MAX_TICKS, 1 << 40);
+/// assert_eq!(ctrl_core::profile::MAX_TICKS, u32::MAX as u64);
 /// ```
-pub const MAX_TICKS: u64 = 1 << 40;
+pub const MAX_TICKS: u64 = u32::MAX as u64;
+
+/// Bound on target positions, counts (exclusive): [`Profile::start`] refuses a move whose
+/// target is not strictly inside `±POSITION_LIMIT` = ±2³⁰ counts, or whose setpoint would
+/// leave that range on the way (a retarget that overshoots while braking). The doubled
+/// position is an `i64`, so reported positions cover about ±2³⁰ counts (module docs,
+/// overflow policy).
+///
+/// ```
+/// use ctrl_core::profile::POSITION_LIMIT;
+/// assert_eq!(POSITION_LIMIT, fixed::types::I32F32::from_num(1 << 30));
+/// ```
+pub const POSITION_LIMIT: I32F32 = I32F32::from_bits(1 << 62);
+
+/// Bound on a move's cruise speed, counts/tick (exclusive): [`Profile::start`] refuses
+/// `cruise_speed ≥ 2¹⁵`. Every [`Setpoint::speed`] is then strictly inside `±SPEED_LIMIT`.
+///
+/// ```
+/// use ctrl_core::profile::SPEED_LIMIT;
+/// assert_eq!(SPEED_LIMIT, fixed::types::I32F32::from_num(1 << 15));
+/// ```
+pub const SPEED_LIMIT: I32F32 = I32F32::from_bits(1 << 47);
+
+/// Bound on a move's acceleration, counts/tick² (exclusive): [`Profile::start`] refuses
+/// `accel ≥ 2¹⁵`. Every [`Setpoint::accel`] is then strictly inside `±ACCEL_LIMIT`.
+///
+/// ```
+/// use ctrl_core::profile::ACCEL_LIMIT;
+/// assert_eq!(ACCEL_LIMIT, fixed::types::I32F32::from_num(1 << 15));
+/// ```
+pub const ACCEL_LIMIT: I32F32 = I32F32::from_bits(1 << 47);
 
 /// One move: distance, cruise speed, end speed and acceleration.
 ///
@@ -242,6 +273,12 @@ impl Move {
 /// * `accel`: counts/tick², the speed change over the tick just ended
 ///   (`speed[k] − speed[k−1]`).
 ///
+/// **Range:** every `Setpoint` that a [`Profile`] returns has `|speed| < 2¹⁵` counts/tick
+/// ([`SPEED_LIMIT`]) and `|accel| < 2¹⁵` counts/tick² ([`ACCEL_LIMIT`]), so speed and accel
+/// are within `I16F16` range: narrowing them is `(bits >> 16) as i32` with no saturation
+/// ([`Setpoint::speed_i16f16`], [`Setpoint::accel_i16f16`]). Its `position` is within
+/// `[−2³⁰, 2³⁰)` counts (module docs, overflow policy).
+///
 /// ```
 /// use ctrl_core::profile::{Profile, Setpoint};
 /// use fixed::types::I32F32;
@@ -258,6 +295,46 @@ pub struct Setpoint {
     pub speed: I32F32,
     /// Speed change over the last tick, counts/tick².
     pub accel: I32F32,
+}
+
+impl Setpoint {
+    /// `speed` narrowed to `I16F16` (counts/tick): `(bits >> 16) as i32`, dropping the 16
+    /// lowest fraction bits (rounds toward −∞, error < 2⁻¹⁶). No saturation is needed for a
+    /// setpoint from a [`Profile`] (`|speed| < 2¹⁵`, see the type's docs), so this equals a
+    /// saturating narrow there; for a hand-made `Setpoint` outside that range the high bits
+    /// are dropped (it wraps).
+    ///
+    /// ```
+    /// use ctrl_core::profile::{Move, Profile};
+    /// use fixed::types::{I16F16, I32F32};
+    ///
+    /// let mut p = Profile::new();
+    /// p.start(Move::new(I32F32::from_num(6), I32F32::from_num(2), I32F32::ZERO, I32F32::ONE))
+    ///     .unwrap();
+    /// assert_eq!(p.step().speed_i16f16(), I16F16::ONE);
+    /// ```
+    #[inline(always)]
+    pub const fn speed_i16f16(&self) -> I16F16 {
+        I16F16::from_bits((self.speed.to_bits() >> 16) as i32)
+    }
+
+    /// `accel` narrowed to `I16F16` (counts/tick²), like [`Setpoint::speed_i16f16`]:
+    /// `(bits >> 16) as i32`, exact up to the dropped 16 fraction bits for a setpoint from
+    /// a [`Profile`] (`|accel| < 2¹⁵`).
+    ///
+    /// ```
+    /// use ctrl_core::profile::{Move, Profile};
+    /// use fixed::types::{I16F16, I32F32};
+    ///
+    /// let mut p = Profile::new();
+    /// p.start(Move::new(I32F32::from_num(-6), I32F32::from_num(2), I32F32::ZERO, I32F32::ONE))
+    ///     .unwrap();
+    /// assert_eq!(p.step().accel_i16f16(), I16F16::from_num(-1));
+    /// ```
+    #[inline(always)]
+    pub const fn accel_i16f16(&self) -> I16F16 {
+        I16F16::from_bits((self.accel.to_bits() >> 16) as i32)
+    }
 }
 
 /// What [`Profile::step`] does next.
@@ -283,25 +360,27 @@ const SEGMENTS: usize = 10;
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 struct Segment {
-    /// Ticks in the piece (at least 1 in a used segment).
-    ticks: u64,
     /// Speed on the first tick of the piece.
     first: i64,
     /// Speed change per tick after the first.
     delta: i64,
+    /// Ticks in the piece (at least 1 in a used segment; a plan has at most
+    /// [`MAX_TICKS`] ticks, so this fits).
+    ticks: u32,
 }
 
 impl Segment {
     const NONE: Segment = Segment {
-        ticks: 0,
         first: 0,
         delta: 0,
+        ticks: 0,
     };
 }
 
 /// A planned move as precomputed speed pieces (see the module docs): the speed sequence
 /// `clamp(c, L[k], U[k])` (plus the `+1 LSB` ticks) is piecewise affine, so `start` lists
-/// its pieces once and `step` only counts down and adds.
+/// its pieces once and `step` only counts down and adds. Where `step` stands in it is
+/// kept in [`Profile`] (`next`, `left`, `delta`), next to the rest of the per-tick state.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 struct Plan {
@@ -309,21 +388,12 @@ struct Plan {
     segments: [Segment; SEGMENTS],
     /// Number of used pieces.
     count: u8,
-    /// Next piece to start.
-    next: u8,
-    /// Ticks left in the running piece (0: start the next one on the next tick).
-    left: u64,
-    /// Speed change per tick in the running piece.
-    delta: i64,
 }
 
 impl Plan {
     const IDLE: Plan = Plan {
         segments: [Segment::NONE; SEGMENTS],
         count: 0,
-        next: 0,
-        left: 0,
-        delta: 0,
     };
 
     /// The plan for `shape` at level `level` with `+1 LSB` on ticks `bump_from..bump_to`,
@@ -378,7 +448,8 @@ impl Plan {
                 0
             };
             first_k = end + 1;
-            let ticks = u64::try_from(ticks).unwrap_or(0);
+            // `n ≤ MAX_TICKS` (the search never goes further), so every piece fits.
+            let ticks = u32::try_from(ticks).unwrap_or(u32::MAX);
             // Merge into the previous piece when this one continues it.
             if let Some(prev) = count.checked_sub(1).and_then(|i| plan.segments.get_mut(i)) {
                 let step = if prev.ticks > 1 {
@@ -387,18 +458,18 @@ impl Plan {
                     first.wrapping_sub(prev.first)
                 };
                 let next = i128::from(prev.first)
-                    + i128::from(prev.ticks as i64).saturating_mul(i128::from(step));
+                    + i128::from(prev.ticks).saturating_mul(i128::from(step));
                 if next == i128::from(first) && (ticks == 1 || delta == step) {
                     prev.delta = step;
-                    prev.ticks += ticks;
+                    prev.ticks = prev.ticks.saturating_add(ticks);
                     continue;
                 }
             }
             if let Some(slot) = plan.segments.get_mut(count) {
                 *slot = Segment {
-                    ticks,
                     first,
                     delta,
+                    ticks,
                 };
                 count += 1;
             }
@@ -407,32 +478,51 @@ impl Plan {
         plan
     }
 
-    /// Next speed (LSB/tick, signed) and whether the plan is over. Counts and adds only.
-    #[inline(always)]
-    fn advance(&mut self, prev: i64) -> (i64, bool) {
-        let v = if self.left == 0 {
-            match self.segments.get(usize::from(self.next)) {
-                Some(seg) if self.next < self.count => {
-                    self.next += 1;
-                    self.left = seg.ticks;
-                    self.delta = seg.delta;
-                    seg.first
-                }
-                _ => prev,
+    /// Whether the doubled position stays within the `i64` range on every tick of the
+    /// plan when it starts from doubled position `pos2` and speed `speed` (LSB). Start-time
+    /// work: per piece, the doubled position after its `t + 1`-th tick is
+    /// `P1 + 2 f t + δ t²` (`f` its first speed, `δ` its speed change, `P1` the doubled
+    /// position after its first tick), a parabola in `t`, so its extremes are at the
+    /// piece's ends or at the whole ticks next to the vertex `t = −f/δ`.
+    fn stays_in_range(&self, pos2: i128, speed: i128) -> bool {
+        let inside = |p: i128| p >= i128::from(i64::MIN) && p <= i128::from(i64::MAX);
+        let (mut p, mut s) = (pos2, speed);
+        for seg in self.segments.iter().take(usize::from(self.count)) {
+            let (f, d) = (i128::from(seg.first), i128::from(seg.delta));
+            let last = i128::from(seg.ticks) - 1;
+            let p1 = p + s + f;
+            // |f|, |δ| < 2⁶⁴ and t < 2³²: no product comes near the i128 range.
+            let at = |t: i128| {
+                p1.saturating_add(mul(2 * f, t))
+                    .saturating_add(mul(d, mul(t, t)))
+            };
+            let mut extremes = [0, last, 0, 0];
+            if d != 0 {
+                // floor(−f/δ), with a positive divisor.
+                let vertex = if d > 0 {
+                    floor_div(-f, d)
+                } else {
+                    floor_div(f, -d)
+                };
+                // (`max`/`min`, not `clamp`: that one has a panic path.)
+                extremes[2] = vertex.max(0).min(last);
+                extremes[3] = (vertex + 1).max(0).min(last);
             }
-        } else {
-            prev.wrapping_add(self.delta)
-        };
-        self.left = self.left.saturating_sub(1);
-        (v, self.left == 0 && self.next >= self.count)
+            if !extremes.iter().all(|&t| inside(at(t))) {
+                return false;
+            }
+            p = at(last);
+            s = f + mul(d, last);
+        }
+        true
     }
 
-    /// Ticks left in the plan.
-    const fn ticks_left(&self) -> u64 {
-        let mut total = self.left;
-        let mut i = self.next as usize;
+    /// Ticks left: `left` in the running piece, then all of the pieces from `next` on.
+    const fn ticks_after(&self, next: u8, left: u32) -> u64 {
+        let mut total = left as u64;
+        let mut i = next as usize;
         while i < self.count as usize && i < SEGMENTS {
-            total = total.saturating_add(self.segments[i].ticks);
+            total += self.segments[i].ticks as u64;
             i += 1;
         }
         total
@@ -468,20 +558,31 @@ impl Plan {
 /// assert!(prof.is_done());
 /// assert_eq!(prof.setpoint().position, I32F32::from_num(6));
 /// ```
+// `repr(C)` only fixes the field order: the per-tick fields come first, so that on
+// thumbv6m (load/store offsets of at most 124 bytes) they are all reached from one base
+// register, and the pieces (240 bytes, read a few times per move) come last.
 #[derive(Clone, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[repr(C)]
 pub struct Profile {
-    /// Doubled position, LSB (2⁻³² count) × 2.
-    pos2: i128,
+    /// Doubled position, LSB (2⁻³² count) × 2; saturates at the `i64` range.
+    pos2: i64,
     /// Setpoint speed, LSB/tick.
     speed: i64,
+    /// Speed change per tick in the running piece, LSB/tick².
+    delta: i64,
     /// Last speed change, LSB/tick².
     accel: i64,
-    /// What `step` does.
+    /// Ticks left in the running piece after the last step. Non-zero only in
+    /// `Mode::Plan`: then `step` only adds `delta` (the short path).
+    left: u32,
+    /// Next piece of the plan to start.
+    next: u8,
+    /// What `step` does when `left` is 0.
     mode: Mode,
     /// Deceleration for `stop`: the accel of the last started move, LSB/tick².
     brake_accel: i64,
-    /// The running plan (meaningful in `Mode::Plan`).
+    /// The running plan's pieces (meaningful in `Mode::Plan`).
     plan: Plan,
 }
 
@@ -521,9 +622,12 @@ impl Profile {
     /// ```
     pub const fn at(position: I32F32) -> Profile {
         Profile {
-            pos2: 2 * position.to_bits() as i128,
+            pos2: position.to_bits().saturating_mul(2),
             speed: 0,
+            delta: 0,
             accel: 0,
+            left: 0,
+            next: 0,
             mode: Mode::Coast,
             brake_accel: 0,
             plan: Plan::IDLE,
@@ -553,26 +657,32 @@ impl Profile {
     /// assert_eq!(p.start(good), Ok(()));
     /// ```
     pub fn start(&mut self, mv: Move) -> Result<(), Error> {
-        let planned = self.prepare(mv)?;
-        self.brake_accel = sat_i64(i128::from(mv.accel.to_bits()));
-        match planned {
+        match self.prepare(mv)? {
             None => {
                 // Already there and at rest: nothing to do.
                 self.mode = Mode::Coast;
+                self.left = 0;
                 self.accel = 0;
             }
             Some((shape, found, negative)) => {
                 let bump_from = i128::from(found.bump_from);
-                self.plan = Plan::build(
+                let plan = Plan::build(
                     &shape,
                     found.level,
                     bump_from,
                     bump_from + i128::from(found.bump),
                     negative,
                 );
+                if !plan.stays_in_range(i128::from(self.pos2), i128::from(self.speed)) {
+                    return Err(Error::OutOfRange);
+                }
+                self.plan = plan;
                 self.mode = Mode::Plan;
+                self.next = 0;
+                self.left = 0;
             }
         }
+        self.brake_accel = mv.accel.to_bits();
         Ok(())
     }
 
@@ -584,12 +694,18 @@ impl Profile {
         let vc = i128::from(mv.cruise_speed.to_bits());
         let ve = i128::from(mv.end_speed.to_bits());
         let a = i128::from(mv.accel.to_bits());
+        let rate = i128::from(SPEED_LIMIT.to_bits());
         if a <= 0 || vc <= 0 || ve < 0 || ve > vc || (distance == 0 && ve != 0) {
             return Err(Error::OutOfRange);
         }
-        let here = self.pos2 / 2; // the reported position (rounded toward zero)
+        if vc >= rate || a >= i128::from(ACCEL_LIMIT.to_bits()) {
+            return Err(Error::OutOfRange);
+        }
+        let pos2 = i128::from(self.pos2);
+        let here = pos2 / 2; // the reported position (rounded toward zero)
         let target = here + distance;
-        if target < i128::from(i64::MIN) || target > i128::from(i64::MAX) {
+        let limit = i128::from(POSITION_LIMIT.to_bits());
+        if target <= -limit || target >= limit {
             return Err(Error::OutOfRange);
         }
         let u = i128::from(self.speed);
@@ -600,13 +716,13 @@ impl Profile {
         let signed = |x: i128| if negative { -x } else { x };
         // Doubled end position: 2 target, or one off it when the parity of the interior
         // sum needs it, on the side that still rounds (toward zero) to the target.
-        let parity = (self.pos2 + u + ve).rem_euclid(2);
+        let parity = (pos2 + u + ve).rem_euclid(2);
         let half = match target.signum() {
             0 => signed(parity),
             s if s < 0 => -parity,
             _ => parity,
         };
-        let q = signed(2 * target + half - self.pos2);
+        let q = signed(2 * target + half - pos2);
         let w0 = signed(u);
         let m = (q - w0 - ve) >> 1; // even by the choice of `half`
         let found = solve(w0, ve, vc, a, m, q >> 1)?;
@@ -633,17 +749,41 @@ impl Profile {
     /// assert_eq!((sp.position, sp.speed, sp.accel),
     ///            (I32F32::lit("0.5"), I32F32::ONE, I32F32::ONE));
     /// ```
+    #[inline]
     pub fn step(&mut self) -> Setpoint {
         let prev = self.speed;
+        if self.left != 0 {
+            // Inside a piece (the common tick): count down, add the piece's speed change.
+            self.left -= 1;
+            let next = prev.wrapping_add(self.delta);
+            self.pos2 = self.pos2.saturating_add(prev.wrapping_add(next));
+            self.accel = self.delta;
+            self.speed = next;
+        } else {
+            self.step_edge(prev);
+        }
+        self.setpoint()
+    }
+
+    /// [`Profile::step`] when no piece is running on: the first tick of a piece, the tick
+    /// after a plan's last one, coasting and braking.
+    #[inline(never)]
+    fn step_edge(&mut self, prev: i64) {
         let next = match self.mode {
             Mode::Coast => prev,
-            Mode::Plan => {
-                let (v, over) = self.plan.advance(prev);
-                if over {
-                    self.mode = Mode::Coast;
+            Mode::Plan => match self.plan.segments.get(usize::from(self.next)) {
+                Some(seg) if self.next < self.plan.count => {
+                    self.next += 1;
+                    self.left = seg.ticks.saturating_sub(1);
+                    self.delta = seg.delta;
+                    seg.first
                 }
-                v
-            }
+                _ => {
+                    // The plan ended on the last tick (`is_done` was already true).
+                    self.mode = Mode::Coast;
+                    prev
+                }
+            },
             Mode::Brake => {
                 let a = self.brake_accel;
                 if prev > a {
@@ -656,12 +796,9 @@ impl Profile {
                 }
             }
         };
-        self.pos2 = self
-            .pos2
-            .saturating_add(i128::from(prev) + i128::from(next));
-        self.accel = next.saturating_sub(prev);
+        self.pos2 = self.pos2.saturating_add(prev.wrapping_add(next));
+        self.accel = next.wrapping_sub(prev);
         self.speed = next;
-        self.setpoint()
     }
 
     /// Emergency hold: freezes the setpoint at its current position with speed 0 and drops
@@ -683,6 +820,7 @@ impl Profile {
     /// ```
     pub const fn hold(&mut self) {
         self.mode = Mode::Coast;
+        self.left = 0;
         self.speed = 0;
         self.accel = 0;
     }
@@ -708,6 +846,7 @@ impl Profile {
             self.hold();
         } else {
             self.mode = Mode::Brake;
+            self.left = 0;
         }
     }
 
@@ -726,7 +865,12 @@ impl Profile {
     /// assert_eq!(p.setpoint().position, I32F32::ONE);
     /// ```
     pub const fn is_done(&self) -> bool {
-        matches!(self.mode, Mode::Coast)
+        match self.mode {
+            Mode::Coast => true,
+            // The last piece ran out on the last tick; the next step coasts.
+            Mode::Plan => self.left == 0 && self.next >= self.plan.count,
+            Mode::Brake => false,
+        }
     }
 
     /// Ticks left in the running move (0 when none is running; while braking after
@@ -744,7 +888,7 @@ impl Profile {
     /// ```
     pub const fn ticks_left(&self) -> u64 {
         match self.mode {
-            Mode::Plan => self.plan.ticks_left(),
+            Mode::Plan => self.plan.ticks_after(self.next, self.left),
             Mode::Coast | Mode::Brake => 0,
         }
     }
@@ -758,7 +902,7 @@ impl Profile {
     /// ```
     pub const fn setpoint(&self) -> Setpoint {
         Setpoint {
-            position: I32F32::from_bits(sat_i64(self.pos2 / 2)),
+            position: I32F32::from_bits(self.pos2 / 2),
             speed: I32F32::from_bits(self.speed),
             accel: I32F32::from_bits(self.accel),
         }
@@ -1166,9 +1310,51 @@ mod tests {
         Brake,
     }
 
+    /// The doubled `i64` range, in `i128`.
+    const POS2_MIN: i128 = i64::MIN as i128;
+    const POS2_MAX: i128 = i64::MAX as i128;
+
+    /// The per-tick envelope plan for a prepared move.
+    fn envelope(shape: &Shape, found: &Solution, negative: bool) -> EnvelopePlan {
+        let (n, a) = (shape.n, shape.a);
+        EnvelopePlan {
+            negative,
+            tick: 0,
+            ticks: found.ticks,
+            accel: a,
+            entry_up: shape.w0,
+            entry_down: shape.w0,
+            exit_up: shape.ve + mul(n, a),
+            exit_down: shape.ve - mul(n, a),
+            level: found.level,
+            bump_from: found.bump_from,
+            bump_to: found.bump_from + found.bump,
+        }
+    }
+
+    /// Whether the doubled position leaves the `i64` range on some tick of `plan`, walked
+    /// tick by tick in `i128` from `pos2` and `speed`.
+    fn leaves_range(mut plan: EnvelopePlan, mut pos2: i128, mut speed: i128) -> bool {
+        while plan.tick < plan.ticks {
+            let v = i128::from(plan.advance());
+            pos2 += speed + v;
+            speed = v;
+            if !(POS2_MIN..=POS2_MAX).contains(&pos2) {
+                return true;
+            }
+        }
+        false
+    }
+
     /// Reference model of the whole profile with the old per-tick plan: the same state
-    /// update as the old `Profile::step` (doubled `i128` position, brake, coast). Planning
-    /// goes through the shared `Profile::prepare` (unchanged by the rewrite of `step`).
+    /// update as the old `Profile::step` (doubled position in `i128`, here saturated at
+    /// the `i64` range after every tick as the new policy says; brake; coast). Planning
+    /// goes through the shared `Profile::prepare` (unchanged by the rewrite of `step`);
+    /// whether a prepared plan is accepted (the range check on the whole way, done on the
+    /// pieces) is taken from `Profile::start` and checked here independently: an accepted
+    /// plan's doubled position never leaves the `i64` range while it runs (asserted on every
+    /// tick, before saturating), and a plan refused by that check does leave it when walked
+    /// tick by tick (checked for plans of up to 200 000 ticks).
     #[derive(Clone, Debug)]
     struct Reference {
         pos2: i128,
@@ -1182,7 +1368,7 @@ mod tests {
     impl Reference {
         fn at(position: i64) -> Reference {
             Reference {
-                pos2: 2 * i128::from(position),
+                pos2: (2 * i128::from(position)).clamp(POS2_MIN, POS2_MAX),
                 speed: 0,
                 accel: 0,
                 mode: RefMode::Coast,
@@ -1192,34 +1378,32 @@ mod tests {
         }
 
         fn start(&mut self, mv: Move) -> Result<(), Error> {
-            let probe = Profile {
-                pos2: self.pos2,
+            let mut probe = Profile {
+                pos2: i64::try_from(self.pos2).expect("the reference keeps pos2 in i64"),
                 speed: self.speed,
                 ..Profile::new()
             };
             let planned = probe.prepare(mv)?;
-            let a = i128::from(mv.accel.to_bits());
-            self.brake_accel = sat_i64(a);
+            if let Some((shape, found, negative)) = &planned {
+                if probe.start(mv).is_err() {
+                    let plan = envelope(shape, found, *negative);
+                    if found.ticks <= 200_000 {
+                        assert!(
+                            leaves_range(plan, self.pos2, i128::from(self.speed)),
+                            "refused {mv:?}, yet its plan stays in range"
+                        );
+                    }
+                    return Err(Error::OutOfRange);
+                }
+            }
+            self.brake_accel = sat_i64(i128::from(mv.accel.to_bits()));
             match planned {
                 None => {
                     self.mode = RefMode::Coast;
                     self.accel = 0;
                 }
                 Some((shape, found, negative)) => {
-                    let n = shape.n;
-                    self.plan = Some(EnvelopePlan {
-                        negative,
-                        tick: 0,
-                        ticks: found.ticks,
-                        accel: a,
-                        entry_up: shape.w0,
-                        entry_down: shape.w0,
-                        exit_up: shape.ve + mul(n, a),
-                        exit_down: shape.ve - mul(n, a),
-                        level: found.level,
-                        bump_from: found.bump_from,
-                        bump_to: found.bump_from + found.bump,
-                    });
+                    self.plan = Some(envelope(&shape, &found, negative));
                     self.mode = RefMode::Plan;
                 }
             }
@@ -1228,6 +1412,7 @@ mod tests {
 
         fn step(&mut self) -> Setpoint {
             let prev = self.speed;
+            let planning = self.mode == RefMode::Plan;
             let next = match (self.mode, self.plan.as_mut()) {
                 (RefMode::Plan, Some(plan)) => {
                     let v = plan.advance();
@@ -1249,9 +1434,14 @@ mod tests {
                 }
                 _ => prev,
             };
-            self.pos2 = self
-                .pos2
-                .saturating_add(i128::from(prev) + i128::from(next));
+            let pos2 = self.pos2 + i128::from(prev) + i128::from(next);
+            if planning {
+                assert!(
+                    (POS2_MIN..=POS2_MAX).contains(&pos2),
+                    "an accepted plan left the range: doubled position {pos2}"
+                );
+            }
+            self.pos2 = pos2.clamp(POS2_MIN, POS2_MAX);
             self.accel = next.saturating_sub(prev);
             self.speed = next;
             self.setpoint()
@@ -1301,16 +1491,43 @@ mod tests {
     }
 
     /// LSB values of one scale: tiny integers (many one-tick pieces and ties), the demo
-    /// rover's range, or anything.
-    fn scaled(lo: i64, hi: i64) -> BoxedStrategy<i64> {
-        prop_oneof![lo..hi, (lo << 26)..(hi << 30), any::<i64>()].boxed()
+    /// rover's range, anything up to `wide` (the accepted range: 2⁶² LSB for distances,
+    /// 2⁴⁷ for speeds and accelerations), or anything at all (mostly refused).
+    fn scaled(lo: i64, hi: i64, wide: i64) -> BoxedStrategy<i64> {
+        let from = if lo < 0 { -wide } else { lo };
+        prop_oneof![
+            3 => lo..hi,
+            3 => (lo << 26)..(hi << 30),
+            2 => from..wide,
+            1 => any::<i64>(),
+        ]
+        .boxed()
+    }
+
+    /// Distances, speeds and accelerations of the chains.
+    fn distance() -> BoxedStrategy<i64> {
+        scaled(-60, 60, 1 << 62)
+    }
+    fn rate(lo: i64, hi: i64) -> BoxedStrategy<i64> {
+        scaled(lo, hi, 1 << 47)
+    }
+
+    /// Start positions: as [`scaled`], or within 2³⁸ LSB (64 counts) of either end of the
+    /// position range, where moves of the demo scale reach the range limit.
+    fn position() -> BoxedStrategy<i64> {
+        prop_oneof![
+            3 => scaled(-1000, 1000, 1 << 62),
+            1 => (0i64..1 << 38, any::<bool>())
+                .prop_map(|(r, low)| if low { r - (1 << 62) } else { (1 << 62) - r }),
+        ]
+        .boxed()
     }
 
     fn op() -> impl Strategy<Value = Op> {
         prop_oneof![
-            4 => (scaled(-60, 60), scaled(1, 12), scaled(0, 12), scaled(1, 6))
+            4 => (distance(), rate(1, 12), rate(0, 12), rate(1, 6))
                 .prop_map(|(d, vc, ve, a)| Op::Start(d, vc, ve.min(vc).max(0), a)),
-            2 => (scaled(-60, 60), scaled(1, 12), Just(0i64), scaled(1, 6))
+            2 => (distance(), rate(1, 12), Just(0i64), rate(1, 6))
                 .prop_map(|(d, vc, ve, a)| Op::Start(d, vc, ve, a)),
             3 => (0u16..400).prop_map(Op::Steps),
             2 => Just(Op::Finish),
@@ -1333,7 +1550,7 @@ mod tests {
         /// holds, from any start position.
         #[test]
         fn pieces_match_the_per_tick_envelope_plan(
-            start in scaled(-1000, 1000),
+            start in position(),
             ops in proptest::collection::vec(op(), 1..12),
         ) {
             let mut p = Profile::at(I32F32::from_bits(start));
@@ -1377,6 +1594,53 @@ mod tests {
         }
     }
 
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(2000))]
+
+        /// The range check of `start` (on the pieces, in closed form) against walking the
+        /// per-tick envelope plan in `i128`: a move is accepted exactly when its doubled
+        /// position stays in the `i64` range on every tick. Near either end of the range,
+        /// moving towards it, with retargets that overshoot while they brake.
+        #[test]
+        fn range_check_matches_a_per_tick_walk(
+            gap in 0i64..1 << 38,
+            speed in 0i64..1 << 36,
+            d in -(1i64 << 40)..1 << 40,
+            vc in 1i64 << 30..1 << 37,
+            fe in 0.0f64..=1.0,
+            a in 1i64 << 24..1 << 34,
+            low: bool,
+        ) {
+            let sign = if low { -1 } else { 1 };
+            let ve = if d == 0 { 0 } else { (vc as f64 * fe) as i64 };
+            let p = Profile {
+                pos2: sign * (i64::MAX - 2 * gap),
+                speed: sign * speed,
+                ..Profile::new()
+            };
+            let m = Move::new(
+                I32F32::from_bits(sign * d),
+                I32F32::from_bits(vc),
+                I32F32::from_bits(ve),
+                I32F32::from_bits(a),
+            );
+            if let Ok(Some((shape, found, negative))) = p.prepare(m) {
+                let plan = envelope(&shape, &found, negative);
+                let walked = !leaves_range(plan, i128::from(p.pos2), i128::from(p.speed));
+                let mut q = p.clone();
+                let accepted = q.start(m).is_ok();
+                prop_assert_eq!(accepted, walked);
+                if accepted {
+                    let target = p.setpoint().position + m.distance();
+                    while !q.is_done() {
+                        q.step();
+                    }
+                    prop_assert_eq!(q.setpoint().position, target);
+                }
+            }
+        }
+    }
+
     #[test]
     fn pieces_of_the_hand_checked_move() {
         // 6 counts at cruise 2, accel 1 from rest: speeds 1, 2, 2, 1, 0 on ticks 1..=5
@@ -1411,7 +1675,8 @@ mod tests {
 
     #[test]
     fn first_fit_gives_the_same_answer_for_any_hint() {
-        for answer in [1i128, 2, 37, 1000, 1 << 33] {
+        let max = i128::from(MAX_TICKS);
+        for answer in [1i128, 2, 37, 1000, 1 << 31, max] {
             for hint in [0, 1, answer - 1, answer, answer + 1, answer * 3, 1 << 45] {
                 assert_eq!(
                     first_fit(1, hint, |k| k >= answer),
@@ -1421,6 +1686,8 @@ mod tests {
             }
         }
         assert_eq!(first_fit(50, 10, |k| k >= 37), Ok(50));
+        // One tick more than MAX_TICKS is never searched.
+        assert_eq!(first_fit(1, 0, |k| k > max), Err(Error::OutOfRange));
         assert_eq!(first_fit(1, 5, |_| false), Err(Error::OutOfRange));
     }
 
