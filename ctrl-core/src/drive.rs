@@ -190,7 +190,7 @@ impl AxisState {
         let sp = self.profile.setpoint();
         AxisSample {
             setpoint: sp.position,
-            speed: narrow(sp.speed),
+            speed: sp.speed_i16f16(),
             error: self.error,
             feedforward: self.feedforward,
             feedback: self.feedback,
@@ -304,8 +304,10 @@ impl Axis {
         let sp = state.profile.step();
         // Wrapping, like the encoder positions: exact while |positions| < 2^30 counts.
         let error = narrow(sp.position.wrapping_sub(measured));
-        let speed = narrow(sp.speed);
-        let ff = self.feedforward.volts(speed, narrow(sp.accel));
+        // In I16F16 range by the profile's guarantee (see `Setpoint`): a shift, no saturation.
+        let ff = self
+            .feedforward
+            .volts(sp.speed_i16f16(), sp.accel_i16f16());
         let fb = match &self.feedback {
             Feedback::Pd(pd) => pd.update(&mut state.pd, error, measured_speed),
             Feedback::Lead(lead) => lead.update(&mut state.lead, error),
