@@ -565,6 +565,13 @@ impl Plan {
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[repr(C)]
 pub struct Profile {
+    /// Ticks left in the running piece after the last step. Non-zero only in
+    /// `Mode::Plan`: then `step` only adds `delta` (the short path).
+    left: u32,
+    /// Next piece of the plan to start.
+    next: u8,
+    /// What `step` does when `left` is 0.
+    mode: Mode,
     /// Doubled position, LSB (2⁻³² count) × 2; saturates at the `i64` range.
     pos2: i64,
     /// Setpoint speed, LSB/tick.
@@ -573,13 +580,6 @@ pub struct Profile {
     delta: i64,
     /// Last speed change, LSB/tick².
     accel: i64,
-    /// Ticks left in the running piece after the last step. Non-zero only in
-    /// `Mode::Plan`: then `step` only adds `delta` (the short path).
-    left: u32,
-    /// Next piece of the plan to start.
-    next: u8,
-    /// What `step` does when `left` is 0.
-    mode: Mode,
     /// Deceleration for `stop`: the accel of the last started move, LSB/tick².
     brake_accel: i64,
     /// The running plan's pieces (meaningful in `Mode::Plan`).
@@ -756,7 +756,9 @@ impl Profile {
             // Inside a piece (the common tick): count down, add the piece's speed change.
             self.left -= 1;
             let next = prev.wrapping_add(self.delta);
-            self.pos2 = self.pos2.saturating_add(prev.wrapping_add(next));
+            // `start` checked that this plan keeps the doubled position inside `i64` on
+            // every tick, so this add never wraps (it is the exact sum).
+            self.pos2 = self.pos2.wrapping_add(prev.wrapping_add(next));
             self.accel = self.delta;
             self.speed = next;
         } else {
