@@ -6,9 +6,11 @@
 //! position by the trapezoid rule, `p[k] = p[k-1] + (v[k-1] + v[k]) / 2`, which is exact for
 //! speeds that change linearly within a tick.
 
-use ctrl_core::profile::{Move, Profile, Setpoint};
+use ctrl_core::profile::{
+    Move, Profile, Setpoint, ACCEL_LIMIT, MAX_TICKS, POSITION_LIMIT, SPEED_LIMIT,
+};
 use ctrl_core::Error;
-use fixed::types::I32F32;
+use fixed::types::{I16F16, I32F32};
 
 /// One count in LSB of I32F32.
 const ONE: i64 = 1 << 32;
@@ -246,10 +248,186 @@ fn refuses_bad_moves_and_keeps_running() {
     assert_eq!(p.start(mv(1.0, 2.0, 2.0, 0.01)), Err(Error::OutOfRange));
     let sps = run(&mut p, 100);
     assert_eq!(speeds(&sps), [2.0, 2.0, 1.0, 0.0]);
-    // Target outside the I32F32 range.
-    let mut edge = Profile::at(I32F32::MAX - c(1.0));
+    // Target outside the position range (±2^30 counts, see `position_range_is_2_pow_30`).
+    let mut edge = Profile::at(POSITION_LIMIT - c(1.0));
     assert_eq!(edge.start(mv(2.0, 1.0, 0.0, 1.0)), Err(Error::OutOfRange));
     assert_eq!(edge.start(mv(-2.0, 1.0, 0.0, 1.0)), Ok(()));
+}
+
+/// 2^30 counts in LSB.
+const EDGE: i64 = 1 << 62;
+
+fn bits(b: i64) -> I32F32 {
+    I32F32::from_bits(b)
+}
+
+#[test]
+fn position_range_is_2_pow_30() {
+    // Targets must lie strictly inside ±2^30 counts: from 1 count below the top, a move
+    // of 1 count reaches 2^30 (refused), one LSB less lands on the last position inside.
+    assert_eq!(POSITION_LIMIT.to_bits(), EDGE);
+    let mut p = Profile::at(POSITION_LIMIT - c(1.0));
+    assert_eq!(p.start(mv(1.0, 1.0, 0.0, 1.0)), Err(Error::OutOfRange));
+    assert!(p.is_done(), "a refused move leaves the profile as it was");
+    p.start(Move::new(c(1.0) - I32F32::DELTA, c(1.0), c(0.0), c(1.0)))
+        .unwrap();
+    run(&mut p, 100);
+    assert_eq!(p.setpoint().position.to_bits(), EDGE - 1);
+    // The same at the bottom: -2^30 itself is outside too.
+    let mut q = Profile::at(-POSITION_LIMIT + c(1.0));
+    assert_eq!(q.start(mv(-1.0, 1.0, 0.0, 1.0)), Err(Error::OutOfRange));
+    q.start(Move::new(I32F32::DELTA - c(1.0), c(1.0), c(0.0), c(1.0)))
+        .unwrap();
+    run(&mut q, 100);
+    assert_eq!(q.setpoint().position.to_bits(), 1 - EDGE);
+}
+
+#[test]
+fn a_start_position_outside_the_range_saturates() {
+    // The doubled position is an i64: 2 * I32F32::MAX saturates to i64::MAX, whose half
+    // (rounded toward zero) is 2^62 - 1 LSB; 2 * I32F32::MIN saturates to i64::MIN,
+    // exactly -2^62 LSB = -2^30 counts.
+    assert_eq!(
+        Profile::at(I32F32::MAX).setpoint().position.to_bits(),
+        EDGE - 1
+    );
+    assert_eq!(
+        Profile::at(I32F32::MIN).setpoint().position.to_bits(),
+        -EDGE
+    );
+    assert_eq!(Profile::at(c(-1e9)).setpoint().position, c(-1e9));
+}
+
+#[test]
+fn cruise_speed_and_accel_below_2_pow_15() {
+    let big = SPEED_LIMIT; // 2^15 counts/tick
+    assert_eq!(big, c(32768.0));
+    assert_eq!(ACCEL_LIMIT, c(32768.0));
+    let just = big - I32F32::DELTA;
+    let far = c(1e8);
+    let mut p = Profile::new();
+    assert_eq!(
+        p.start(Move::new(far, big, c(0.0), c(1.0))),
+        Err(Error::OutOfRange)
+    );
+    assert_eq!(
+        p.start(Move::new(far, c(1.0), c(0.0), ACCEL_LIMIT)),
+        Err(Error::OutOfRange)
+    );
+    // One LSB below both: accepted. Speeds just, just, ..., just, 0 cover
+    // just/2 + (K - 2) just + just/2 = (K - 1) just, so 1000 just take K = 1001 ticks,
+    // the first at full accel.
+    let far = just * 1000;
+    p.start(Move::new(far, just, c(0.0), just)).unwrap();
+    assert_eq!(p.ticks_left(), 1001);
+    let sp = p.step();
+    assert_eq!((sp.speed, sp.accel), (just, just));
+    assert_eq!(sp.speed_i16f16().to_bits(), i32::MAX);
+    assert_eq!(sp.speed_i16f16(), I16F16::saturating_from_num(sp.speed));
+    run(&mut p, 100_000);
+    assert_eq!(p.setpoint().position, far);
+}
+
+#[test]
+fn max_ticks_is_u32_max() {
+    // Cruise and accel of 1 LSB from rest: speeds 1, 1, ..., 1, 0 (LSB) cover
+    // 1/2 + (K - 2) + 1/2 = K - 1 LSB in K ticks, so D LSB take D + 1 ticks.
+    assert_eq!(MAX_TICKS, u64::from(u32::MAX));
+    let lsb = I32F32::DELTA;
+    let d = (1i64 << 32) - 2;
+    let mut p = Profile::new();
+    p.start(Move::new(bits(d), lsb, c(0.0), lsb)).unwrap();
+    assert_eq!(p.ticks_left(), MAX_TICKS);
+    let mut q = Profile::new();
+    assert_eq!(
+        q.start(Move::new(bits(d + 1), lsb, c(0.0), lsb)),
+        Err(Error::OutOfRange)
+    );
+}
+
+/// A profile at `2^30 - 100` counts brought to 10 counts/tick towards the top by a move
+/// of 50 counts at accel 1 (speeds 1..=10: 50 counts in 10 ticks, `v^2/(2a)` = 50).
+fn fast_near_the_top() -> Profile {
+    let mut p = Profile::at(POSITION_LIMIT - c(100.0));
+    p.start(mv(50.0, 10.0, 10.0, 1.0)).unwrap();
+    let sps = run(&mut p, 100);
+    assert_eq!(sps.len(), 10);
+    assert_eq!(p.setpoint().position, POSITION_LIMIT - c(50.0));
+    assert_eq!(p.setpoint().speed, c(10.0));
+    p
+}
+
+#[test]
+fn a_retarget_that_would_overshoot_the_range_is_refused() {
+    // From 2^30 - 50 at 10 counts/tick, go back 10 counts. At accel 1 the brake alone
+    // (speeds 9, 8, ..., 0) covers (10 + 9)/2 + ... + (1 + 0)/2 = 50 counts, so the
+    // setpoint would reach 2^30: refused, and the profile carries on as it was.
+    let mut p = fast_near_the_top();
+    let before = p.clone();
+    assert_eq!(p.start(mv(-10.0, 10.0, 0.0, 1.0)), Err(Error::OutOfRange));
+    assert_eq!(p, before);
+    // At accel 2 the brake (8, 6, 4, 2, 0) covers (18 + 14 + 10 + 6 + 2)/2 = 25 counts:
+    // the peak is 2^30 - 25 and the move lands exactly at 2^30 - 60.
+    p.start(mv(-10.0, 10.0, 0.0, 2.0)).unwrap();
+    let sps = run(&mut p, 1000);
+    let peak = sps.iter().map(|s| s.position).max().unwrap();
+    assert_eq!(peak, POSITION_LIMIT - c(25.0));
+    assert_eq!(p.setpoint().position, POSITION_LIMIT - c(60.0));
+    assert_eq!(p.setpoint().speed, c(0.0));
+}
+
+#[test]
+fn coasting_past_the_range_saturates_the_position() {
+    // After a move with a non-zero end speed the setpoint coasts: from 2^30 - 50 at 10
+    // counts/tick it reaches 2^30 after 5 ticks, where the position saturates at the
+    // last value inside (2^62 - 1 LSB) and stays; the speed stays 10.
+    let mut p = fast_near_the_top();
+    let pos: Vec<i64> = (0..8).map(|_| p.step().position.to_bits()).collect();
+    let step = 10 * ONE;
+    assert_eq!(
+        pos,
+        [
+            EDGE - 4 * step,
+            EDGE - 3 * step,
+            EDGE - 2 * step,
+            EDGE - step,
+            EDGE - 1,
+            EDGE - 1,
+            EDGE - 1,
+            EDGE - 1
+        ]
+    );
+    assert_eq!(p.setpoint().speed, c(10.0));
+    // Any move from here that brakes first would pass 2^30: refused. After a hold the
+    // way back is fine and lands exactly.
+    assert_eq!(p.start(mv(-100.0, 10.0, 0.0, 1.0)), Err(Error::OutOfRange));
+    p.hold();
+    p.start(mv(-100.0, 10.0, 0.0, 1.0)).unwrap();
+    run(&mut p, 1000);
+    assert_eq!(p.setpoint().position.to_bits(), EDGE - 1 - 100 * ONE);
+    // Braking (stop) past the range saturates the same way.
+    let mut q = fast_near_the_top();
+    for _ in 0..3 {
+        q.step(); // 2^30 - 20 at 10 counts/tick
+    }
+    q.stop(); // 9, 8, ..., 0 at accel 1: 50 counts more would be needed
+    run(&mut q, 100);
+    assert_eq!(q.setpoint().position.to_bits(), EDGE - 1);
+    assert_eq!(q.setpoint().speed, c(0.0));
+}
+
+#[test]
+fn the_bottom_of_the_range_saturates_at_minus_2_pow_30() {
+    // Mirror of the coast above: the doubled position saturates at i64::MIN, exactly
+    // -2^30 counts.
+    let mut p = Profile::at(-POSITION_LIMIT + c(100.0));
+    p.start(mv(-50.0, 10.0, 10.0, 1.0)).unwrap();
+    run(&mut p, 100);
+    for _ in 0..8 {
+        p.step();
+    }
+    assert_eq!(p.setpoint().position, -POSITION_LIMIT);
+    assert_eq!(p.setpoint().speed, c(-10.0));
 }
 
 #[test]
