@@ -12,8 +12,8 @@
 //! bound (`T <= K < T + 1 + (a/4 + 1/2 LSB)/v_top`, derived in the module docs), which is
 //! computed in f64 with a 1e-9 tick allowance for f64 rounding of T.
 
-use ctrl_core::profile::{Move, Profile, Setpoint};
-use fixed::types::I32F32;
+use ctrl_core::profile::{Move, Profile, Setpoint, ACCEL_LIMIT, SPEED_LIMIT};
+use fixed::types::{I16F16, I32F32};
 use proptest::prelude::*;
 
 /// LSB per count.
@@ -328,6 +328,103 @@ proptest! {
             p.stop();
             p.step();
             p.hold();
+        }
+    }
+}
+
+/// One operation of a chain: a move (distance, cruise, end speed as a fraction of the
+/// cruise, accel; all LSB), a run of steps, a stop or a hold.
+#[derive(Clone, Debug)]
+enum Op {
+    Start(i64, i64, f64, i64),
+    Steps(u16),
+    Stop,
+    Hold,
+}
+
+/// An LSB magnitude in `[1, 2^47)` spread evenly over its binary exponent (any scale up
+/// to just below 2^15 counts/tick), one of the last thousand LSB below 2^47, or (rarely)
+/// one at or above 2^47, which `start` must refuse.
+fn rate() -> BoxedStrategy<i64> {
+    prop_oneof![
+        8 => (0u32..47).prop_flat_map(|e| (1i64 << e)..1i64 << (e + 1)),
+        2 => (1i64..1000).prop_map(|r| (1i64 << 47) - r),
+        1 => (1i64 << 47)..1 << 50,
+    ]
+    .boxed()
+}
+
+fn chain_op() -> impl Strategy<Value = Op> {
+    // Distances up to 2^62 LSB (2^30 counts) either way, spread over the exponent.
+    let distance = (0u32..62, any::<bool>()).prop_flat_map(|(e, neg)| {
+        ((1i64 << e)..1i64 << (e + 1)).prop_map(move |d| if neg { -d } else { d })
+    });
+    let end = prop_oneof![Just(0.0), Just(1.0), 0.0f64..=1.0];
+    prop_oneof![
+        5 => (distance, rate(), end.clone(), rate()).prop_map(|(d, vc, fe, a)| Op::Start(d, vc, fe, a)),
+        // Fast: long moves near the speed limit at a high accel, so that later moves
+        // retarget from speeds near 2^15 counts/tick.
+        2 => (
+            (1i64 << 59..1 << 62, any::<bool>()).prop_map(|(d, neg)| if neg { -d } else { d }),
+            (1i64 << 46)..1 << 47,
+            end,
+            (1i64 << 40)..1 << 47,
+        )
+            .prop_map(|(d, vc, fe, a)| Op::Start(d, vc, fe, a)),
+        // Hard turns: fast moves either way with an accel near 2^15 counts/tick^2 (half of
+        // them at or above it, which must be refused), so a retarget against a fast
+        // setpoint would change the speed by more than 2^15 in one tick if let through.
+        1 => (
+            (1i64 << 50..1 << 62, any::<bool>()).prop_map(|(d, neg)| if neg { -d } else { d }),
+            (1i64 << 46)..1 << 47,
+            (1i64 << 46)..1 << 48,
+        )
+            .prop_map(|(d, vc, a)| Op::Start(d, vc, 0.0, a)),
+        4 => (0u16..3000).prop_map(Op::Steps),
+        1 => Just(Op::Stop),
+        1 => Just(Op::Hold),
+    ]
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 600, failure_persistence: None, ..ProptestConfig::default() })]
+
+    /// Every setpoint has `|speed| < 2^15` counts/tick and `|accel| < 2^15` counts/tick^2
+    /// (`SPEED_LIMIT`, `ACCEL_LIMIT`), so narrowing them to I16F16 needs no saturation:
+    /// `Setpoint::speed_i16f16` / `accel_i16f16` (a shift) equal the `fixed` crate's own
+    /// checked conversion, which exists (no overflow). Over chains of moves at any scale up
+    /// to the limits, retargets from whatever speed the last move left (end speeds up to
+    /// the cruise speed carry into the next move), stops and holds; the bound holds by
+    /// induction (a plan's speeds lie between its start speed, its end speed and its cruise
+    /// level), and this checks it on every tick.
+    #[test]
+    fn setpoints_stay_in_i16f16_range(
+        pos in -(1i64 << 61)..1 << 61,
+        ops in prop::collection::vec(chain_op(), 1..12),
+    ) {
+        let mut p = Profile::at(I32F32::from_bits(pos));
+        let check = |s: Setpoint| -> Result<(), TestCaseError> {
+            prop_assert!(s.speed.abs() < SPEED_LIMIT, "speed {}", s.speed);
+            prop_assert!(s.accel.abs() < ACCEL_LIMIT, "accel {}", s.accel);
+            prop_assert_eq!(Some(s.speed_i16f16()), I16F16::checked_from_num(s.speed));
+            prop_assert_eq!(Some(s.accel_i16f16()), I16F16::checked_from_num(s.accel));
+            Ok(())
+        };
+        for op in ops {
+            match op {
+                Op::Start(d, vc, fe, a) => {
+                    let ve = (vc as f64 * fe) as i64;
+                    let _ = p.start(mv(d, vc, ve.min(vc), a));
+                }
+                Op::Steps(n) => {
+                    for _ in 0..n {
+                        check(p.step())?;
+                    }
+                }
+                Op::Stop => p.stop(),
+                Op::Hold => p.hold(),
+            }
+            check(p.setpoint())?;
         }
     }
 }
