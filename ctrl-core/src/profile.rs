@@ -11,7 +11,7 @@
 //! integer arithmetic. `v[k]` is the setpoint speed at tick `k`, `v[0]` the speed when the
 //! move starts and `v[K] = end speed` when it ends, `K` ticks later. The position is
 //! advanced by the trapezoid rule, `p[k] = p[k-1] + (v[k-1] + v[k]) / 2`, kept internally
-//! as a doubled value so the halving never loses anything; the reported position is the
+//! as a doubled value (an `i64`) so the halving never loses anything; the reported position is the
 //! doubled value halved and rounded toward zero (at most ½ LSB from the exact trapezoid
 //! sum, equal to the target at the end of the move, and mirror-symmetric about 0). So `p`
 //! and `v` describe the same instant.
@@ -60,7 +60,13 @@
 //! speed change to the speed (or takes the next piece's first speed) and adds the speed to
 //! the position: no multiplication, no division, no search. A unit test runs it against
 //! the former per-tick form (four lines advanced by `a` every tick, two `max`/`min` and a
-//! clamp) over random chains of moves, retargets, stops and holds: bit for bit the same.
+//! clamp, `i128` position) over random chains of moves, retargets, stops and holds: bit
+//! for bit the same.
+//!
+//! Before it accepts a plan, `start` also checks on the pieces that the doubled position
+//! stays inside the `i64` range on every tick: within a piece it is a parabola in the tick
+//! number (`P1 + 2 f t + δ t²`), so its extremes are at the piece's ends or next to the
+//! vertex. A unit test checks this against walking the per-tick plan in `i128`.
 //!
 //! If no `K` works with `c ≥ 0` (the setpoint is too fast to stop within the distance, or
 //! the new target is behind it, including a zero distance while moving) and the end speed
@@ -92,24 +98,54 @@
 //!   that is `K < T + 1.0015`.
 //! * **Position rounding:** within a move the reported position is the exact trapezoid
 //!   sum rounded toward zero to an LSB (≤ ½ LSB off).
+//! * **Range:** every setpoint of an accepted move lies strictly inside ±2³⁰ counts
+//!   ([`POSITION_LIMIT`]; `start` refuses a move that would leave it on any tick, also by
+//!   overshooting while it brakes), so the position never saturates during a move.
+//! * **Speed and acceleration range:** every [`Setpoint`] any `Profile` returns (moves,
+//!   retargets, coasting, [`Profile::stop`], [`Profile::hold`]) has `|speed| < 2¹⁵`
+//!   counts/tick and `|accel| < 2¹⁵` counts/tick², i.e. both are within `I16F16` range, so
+//!   narrowing them is `(bits >> 16) as i32` with no saturation
+//!   ([`Setpoint::speed_i16f16`]). By induction: `start` refuses `cruise_speed` and
+//!   `accel` of 2¹⁵ or more; a plan's speeds lie between its start speed (the previous
+//!   setpoint's, below 2¹⁵ by induction), its end speed and its level (`|c| ≤ cruise`), as
+//!   `min(max(c, L), U)` with `L ≤ max(w0, ve)` and `U ≥ min(w0, ve)` shows; its speed
+//!   changes are at most `accel`; braking only lowers `|speed|` by at most the last move's
+//!   accel; coasting keeps the speed; a hold sets speed and accel to 0.
 //! * **Mirror image:** a move of `−d` from speed `−u` at position `−p` gives exactly the
-//!   negated setpoints of the move of `d` from `u` at `p`.
+//!   negated setpoints of the move of `d` from `u` at `p` (the position saturation below
+//!   is the one exception: it is −2³⁰ counts at the bottom and 2³⁰ − 2⁻³² at the top).
 //!
 //! # Overflow policy
 //!
-//! The planner works in `i128` and refuses (with [`Error::OutOfRange`]) a target outside
-//! the [`I32F32`] range or a plan longer than [`MAX_TICKS`]; within an accepted plan no
-//! value can overflow. The position accumulator is an `i128` doubled position; the reported
-//! position saturates at the [`I32F32`] range (only reachable while coasting at a non-zero
-//! end speed for a very long time), speeds and accelerations saturate at the [`I32F32`]
-//! range.
+//! The planner works in `i128` and refuses (with [`Error::OutOfRange`], leaving the
+//! profile unchanged) a target not strictly inside ±2³⁰ counts ([`POSITION_LIMIT`]), a
+//! plan whose setpoint would leave that range on the way, a `cruise_speed` or `accel` of
+//! 2¹⁵ or more ([`SPEED_LIMIT`], [`ACCEL_LIMIT`]) and a plan longer than [`MAX_TICKS`]
+//! (`u32::MAX` ticks, so the per-tick counters are `u32`).
+//!
+//! Per tick the state is 64 bits or less: the doubled position is an `i64`, speed and
+//! acceleration `i64` (always below 2¹⁵ counts/tick in magnitude, so their additions
+//! cannot overflow), the piece counter a `u32`. Inside a piece of an accepted plan the
+//! doubled position provably stays in the `i64` range (checked by `start`), so it is a
+//! plain add there. Coasting (after a move with a non-zero end speed) and braking
+//! ([`Profile::stop`]) can carry the position past the range; there the doubled position
+//! **saturates** (never wraps) at the `i64` range, so the reported position stops at
+//! −2³⁰ counts or 2³⁰ − 2⁻³² counts while the speed keeps its value (the setpoint is then
+//! no longer consistent, and a `start` from there refuses every move, since any plan
+//! would first carry on past the range: [`Profile::hold`] first). [`Profile::at`] saturates a position outside the
+//! range the same way. At the demo rover's 0.367 mm per count, 2³⁰ counts is about 390 km.
 //!
 //! # Cost
 //!
-//! `step` is a counter, one `i64` addition for the speed and an `i128` addition for the
-//! doubled position (on thumbv6m: 544 bytes of code, no calls at all, so no division and no
-//! multiplication; 200 instructions per tick on a Cortex-M0 and 112 on a Cortex-M4F,
-//! counted under QEMU by `bench/mcu/run.sh`). `start` evaluates the closed-form
+//! `step` inside a piece (the common tick) is one `u32` count-down, one `i64` addition for
+//! the speed, one for the doubled position and its halving: **43 instructions per tick on
+//! a Cortex-M0 (thumbv6m) and 26 on a Cortex-M4F (thumbv7em)**, instruction counts (not
+//! cycles) under QEMU, measured by `bench/mcu/run.sh` (path `profile_fixed`, the demo
+//! forward move accelerating; it was 200 / 112 with an `i128` position and 613 / 395 with
+//! the per-tick envelopes). That short path is inlined at the call site; the first tick of
+//! each piece, the tick after a plan, coasting and braking go through an out-of-line
+//! `step_edge` (212 bytes on thumbv6m, 218 on thumbv7em; no calls, so no division and no
+//! multiplication). `start` evaluates the closed-form
 //! sum a handful of times, each with six `i128` divisions: about 6 times for a move whose
 //! first guess of `K` (the closed-form time) is right, as for the demo moves, and up to
 //! about 30 for short triangular moves and for retargets that must reverse. The first guess
@@ -163,11 +199,12 @@ pub const ACCEL_LIMIT: I32F32 = I32F32::from_bits(1 << 47);
 /// One move: distance, cruise speed, end speed and acceleration.
 ///
 /// * `distance`: counts, relative to the setpoint position when the move starts; any sign,
-///   or zero (come to rest here).
-/// * `cruise_speed`: counts/tick, magnitude, must be `> 0`.
+///   or zero (come to rest here). The target must lie strictly inside ±2³⁰ counts
+///   ([`POSITION_LIMIT`]).
+/// * `cruise_speed`: counts/tick, magnitude, must be `> 0` and `< 2¹⁵` ([`SPEED_LIMIT`]).
 /// * `end_speed`: counts/tick, magnitude in the direction of `distance`, `0 ≤ end_speed ≤
 ///   cruise_speed`; must be zero for a zero distance.
-/// * `accel`: counts/tick², magnitude, must be `> 0`.
+/// * `accel`: counts/tick², magnitude, must be `> 0` and `< 2¹⁵` ([`ACCEL_LIMIT`]).
 ///
 /// The values are checked by [`Profile::start`], so a `Move` can be a `const`.
 ///
@@ -612,7 +649,8 @@ impl Profile {
         Profile::at(I32F32::ZERO)
     }
 
-    /// At rest at `position` (counts), no move.
+    /// At rest at `position` (counts), no move. A position outside ±2³⁰ counts saturates
+    /// to the range (module docs, overflow policy).
     ///
     /// ```
     /// use ctrl_core::profile::Profile;
@@ -641,9 +679,11 @@ impl Profile {
     ///
     /// [`Error::OutOfRange`] (and the profile is left unchanged) when `accel ≤ 0`,
     /// `cruise_speed ≤ 0`, `end_speed < 0`, `end_speed > cruise_speed`, `end_speed ≠ 0`
-    /// with a zero distance, the target is outside the [`I32F32`] range, the plan would be
-    /// longer than [`MAX_TICKS`], or the end speed cannot be reached within the distance
-    /// without reversing.
+    /// with a zero distance, `cruise_speed ≥ 2¹⁵` counts/tick ([`SPEED_LIMIT`]),
+    /// `accel ≥ 2¹⁵` counts/tick² ([`ACCEL_LIMIT`]), the target is not strictly inside
+    /// ±2³⁰ counts ([`POSITION_LIMIT`]), the setpoint would leave that range on the way
+    /// (overshooting while it brakes), the plan would be longer than [`MAX_TICKS`], or the
+    /// end speed cannot be reached within the distance without reversing.
     ///
     /// ```
     /// use ctrl_core::{profile::{Move, Profile}, Error};
@@ -736,7 +776,8 @@ impl Profile {
     }
 
     /// Advances one tick and returns the new setpoint. Adds and compares only; never
-    /// panics.
+    /// panics. Inside a piece (most ticks) it only counts down and adds (inlined); the
+    /// rest goes through an out-of-line path.
     ///
     /// ```
     /// use ctrl_core::profile::{Move, Profile};
