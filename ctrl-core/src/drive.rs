@@ -305,9 +305,7 @@ impl Axis {
         // Wrapping, like the encoder positions: exact while |positions| < 2^30 counts.
         let error = narrow(sp.position.wrapping_sub(measured));
         // In I16F16 range by the profile's guarantee (see `Setpoint`): a shift, no saturation.
-        let ff = self
-            .feedforward
-            .volts(sp.speed_i16f16(), sp.accel_i16f16());
+        let ff = self.feedforward.volts(sp.speed_i16f16(), sp.accel_i16f16());
         let fb = match &self.feedback {
             Feedback::Pd(pd) => pd.update(&mut state.pd, error, measured_speed),
             Feedback::Lead(lead) => lead.update(&mut state.lead, error),
