@@ -318,3 +318,31 @@ proptest! {
         prop_assert!(m.peak_volts <= supply * (1.0 + 1e-4));
     }
 }
+
+/// The conversion refuses a move the firmware profile would refuse on range (its
+/// POSITION_LIMIT / SPEED_LIMIT / ACCEL_LIMIT), naming the constant and the limit, and
+/// accepts one just inside; a move it accepts on range also starts on ctrl-core's profile.
+#[test]
+fn quantize_move_refuses_what_the_profile_cannot_start() {
+    use ctrl_core::profile::Profile;
+    let units = FirmwareUnits {
+        count_size: 0.5, // mm per count
+        rate_hz: 1000.0,
+    };
+    // 2^30 counts = 536870912 mm; 2^15 counts/tick = 16384000 mm/s; 2^15 counts/tick² =
+    // 1.6384e10 mm/s².
+    let ok = quantize_move(536_870_000.0, 16_383_000.0, 1.638e10, &units).unwrap();
+    let mut p = Profile::new();
+    assert_eq!(p.start(ok), Ok(()));
+    for (args, field) in [
+        ((536_870_912.0, 1000.0, 1000.0), "distance"),
+        ((-536_870_912.0, 1000.0, 1000.0), "distance"),
+        ((1000.0, 16_384_000.0, 1000.0), "cruise_speed"),
+        ((1000.0, 1000.0, 1.6384e10), "accel"),
+        ((f64::NAN, 1000.0, 1000.0), "distance"),
+    ] {
+        let e = quantize_move(args.0, args.1, args.2, &units).unwrap_err();
+        assert_eq!(e.constant, field, "{args:?}");
+        assert!(e.valid.contains("magnitude below"), "{}", e.valid);
+    }
+}

@@ -456,6 +456,11 @@ fn fixed32(constant: &'static str, x: f64, valid: &str) -> Result<I32F32, Quanti
 }
 
 /// A move in user units as a `ctrl-core` [`Move`] in counts and ticks (from rest to rest).
+///
+/// Refuses what the firmware's profile would refuse on range alone (its
+/// `POSITION_LIMIT`, `SPEED_LIMIT` and `ACCEL_LIMIT`: distance within ±2^30 counts, cruise
+/// speed below 2^15 counts/tick, acceleration below 2^15 counts/tick²), naming the limit in
+/// the user's units, so a design never emits a move the MCU cannot start.
 pub fn quantize_move(
     distance: f64,
     cruise_speed: f64,
@@ -464,12 +469,39 @@ pub fn quantize_move(
 ) -> Result<Move, QuantizeError> {
     check_units(units)?;
     let (c, f) = (units.count_size, units.rate_hz);
-    let range = "finite and within the I32F32 range (about ±2.1e9)";
+    let within = |constant: &'static str, x: f64, limit: I32F32, unit: &str, per: f64| {
+        let lim = limit.to_num::<f64>();
+        if x.is_finite() && x.abs() < lim {
+            fixed32(constant, x, "finite")
+        } else {
+            Err(QuantizeError {
+                constant,
+                value: x,
+                valid: format!(
+                    "magnitude below {lim} {unit} ({} in the design's units)",
+                    lim * per
+                ),
+            })
+        }
+    };
+    use ctrl_core::profile::{ACCEL_LIMIT, POSITION_LIMIT, SPEED_LIMIT};
     Ok(Move::new(
-        fixed32("distance", distance / c, range)?,
-        fixed32("cruise_speed", cruise_speed / (c * f), range)?,
+        within("distance", distance / c, POSITION_LIMIT, "counts", c)?,
+        within(
+            "cruise_speed",
+            cruise_speed / (c * f),
+            SPEED_LIMIT,
+            "counts/tick",
+            c * f,
+        )?,
         I32F32::ZERO,
-        fixed32("accel", accel / (c * f * f), range)?,
+        within(
+            "accel",
+            accel / (c * f * f),
+            ACCEL_LIMIT,
+            "counts/tick²",
+            c * f * f,
+        )?,
     ))
 }
 
