@@ -25,7 +25,6 @@ mod calib;
 #[cfg(feature = "paths")]
 mod paths;
 #[cfg(feature = "paths")]
-mod proto;
 #[cfg(any(feature = "paths", feature = "size-tick", feature = "size-tick-f32"))]
 mod rover;
 #[cfg(any(feature = "size-tick", feature = "size-tick-f32"))]
@@ -62,9 +61,6 @@ pub struct Bench {
     /// The ctrl-core paths.
     #[cfg(feature = "paths")]
     pub p: paths::State,
-    /// The prototypes.
-    #[cfg(feature = "paths")]
-    pub proto: proto::State,
 }
 
 impl Bench {
@@ -73,8 +69,6 @@ impl Bench {
             calls: 0,
             #[cfg(feature = "paths")]
             p: paths::State::fresh(),
-            #[cfg(feature = "paths")]
-            proto: proto::State::fresh(),
         }
     }
 }
@@ -131,17 +125,13 @@ fn main() -> ! {
     announce(calib::PATHS);
     #[cfg(feature = "paths")]
     announce(paths::PATHS);
-    #[cfg(feature = "paths")]
-    announce(proto::PATHS);
-    #[cfg(feature = "paths")]
-    hprintln!("proto check: {} ticks differ", proto::check());
     let template = Bench::fresh();
     hprintln!("begin");
     for p in calib::PATHS {
         measure(p, &template);
     }
     #[cfg(feature = "paths")]
-    for p in paths::PATHS.iter().chain(proto::PATHS) {
+    for p in paths::PATHS {
         measure(p, &template);
     }
     #[cfg(any(feature = "size-tick", feature = "size-tick-f32"))]

@@ -293,12 +293,6 @@ fn mul_large(b: &mut Bench) {
     s.out[0] = K.saturating_mul(e);
 }
 
-/// Keeps a value observable (used by prototypes).
-#[allow(dead_code)]
-fn keep<T>(x: T) -> T {
-    black_box(x)
-}
-
 /// Measured paths, in run order.
 pub static PATHS: &[Path] = &[
     Path {

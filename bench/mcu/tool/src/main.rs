@@ -119,8 +119,6 @@ struct CoreResult {
     panics: Vec<(String, Vec<String>)>,
     /// Sizes of the larger functions in the `tick` build that are absent from `base`.
     tick_functions: Vec<(String, u64)>,
-    /// Ticks where the prototype profiles differ from the transcription of ctrl-core's.
-    proto_differ: Option<u64>,
 }
 
 impl CoreResult {
@@ -245,7 +243,6 @@ fn self_test(
         text: BTreeMap::new(),
         panics: Vec::new(),
         tick_functions: Vec::new(),
-        proto_differ: None,
     };
     let calib = r.per_tick("calib_loop");
     if calib == Some((2 * k + 1) as f64) {
@@ -326,7 +323,7 @@ fn measure_core(
     }
     let tick_functions = added_functions(&elfs["base"], &elfs["tick"])?;
 
-    let (n, k, windows, proto_differ) = run_qemu(core, &elfs["paths"], out_dir, qemu, keep_logs)?;
+    let (n, k, windows) = run_qemu(core, &elfs["paths"], out_dir, qemu, keep_logs)?;
     Ok(CoreResult {
         triple: core.triple,
         label: core.label,
@@ -336,7 +333,6 @@ fn measure_core(
         text,
         panics,
         tick_functions,
-        proto_differ,
     })
 }
 
@@ -495,7 +491,6 @@ fn run_qemu(
     let mut n = None;
     let mut k = None;
     let mut names = Vec::new();
-    let mut proto_differ = None;
     for line in stdout.lines() {
         let line = line.trim();
         if let Some(rest) = line.strip_prefix("bench-mcu ") {
@@ -509,11 +504,6 @@ fn run_qemu(
             }
         } else if let Some(name) = line.strip_prefix("path ") {
             names.push(name.to_string());
-        } else if let Some(rest) = line.strip_prefix("proto check: ") {
-            proto_differ = rest
-                .split_whitespace()
-                .next()
-                .and_then(|v| v.parse::<u64>().ok());
         }
     }
     let n = n.ok_or_else(|| {
@@ -541,7 +531,7 @@ fn run_qemu(
         .enumerate()
         .map(|(i, name)| (name, counts[2 * i], counts[2 * i + 1]))
         .collect();
-    Ok((n, k, windows, proto_differ))
+    Ok((n, k, windows))
 }
 
 /// Counts `Trace` lines (one per executed instruction under one-instruction blocks and
@@ -809,12 +799,6 @@ fn check(results: &[CoreResult], limits: &Limits) -> Vec<String> {
             )),
             None => f.push(format!("{}: calibration path missing", r.triple)),
         }
-        if let Some(d) = r.proto_differ.filter(|d| *d != 0) {
-            f.push(format!(
-                "{}: prototype profiles differ from the i128 transcription on {d} ticks",
-                r.triple
-            ));
-        }
         for (what, callers) in &r.panics {
             f.push(format!(
                 "{}: panic symbol `{what}` present; referenced from: {}",
@@ -985,15 +969,6 @@ fn render(results: &[CoreResult]) -> String {
         let _ = writeln!(s);
     }
 
-    for r in results {
-        if let Some(d) = r.proto_differ {
-            let _ = writeln!(
-                s,
-                "Prototype profiles against the i128 transcription on `{}`: {d} ticks differ.\n",
-                r.triple
-            );
-        }
-    }
     let _ = writeln!(s, "## Code size (`.text` bytes, release build)\n");
     let _ = write!(s, "| build |");
     for r in results {
