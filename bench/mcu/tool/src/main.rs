@@ -419,7 +419,7 @@ fn run_qemu(
     out_dir: &Path,
     qemu: &QemuFlavour,
     keep_logs: bool,
-) -> Result<(u64, u64, Windows, Option<u64>), String> {
+) -> Result<(u64, u64, Windows), String> {
     let data = fs::read(elf).map_err(|e| format!("{}: {e}", elf.display()))?;
     let file = object::File::parse(&*data).map_err(|e| format!("{}: {e}", elf.display()))?;
     let begin = symbol_address(&file, "bench_marker_begin")
