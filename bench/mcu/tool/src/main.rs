@@ -233,7 +233,7 @@ fn self_test(
         version: format!("{} (self-test: blocks, not instructions)", qemu.version),
     };
     let paths = out_dir.join(format!("{}-paths.elf", core.triple));
-    let (n, k, windows, _) = run_qemu(core, &paths, out_dir, &plain, false)?;
+    let (n, k, windows) = run_qemu(core, &paths, out_dir, &plain, false)?;
     let r = CoreResult {
         triple: core.triple,
         label: core.label,
