@@ -24,7 +24,6 @@ use cortex_m_semihosting::{debug, hprintln};
 mod calib;
 #[cfg(feature = "paths")]
 mod paths;
-#[cfg(feature = "paths")]
 #[cfg(any(feature = "paths", feature = "size-tick", feature = "size-tick-f32"))]
 mod rover;
 #[cfg(any(feature = "size-tick", feature = "size-tick-f32"))]
