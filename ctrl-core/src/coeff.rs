@@ -223,8 +223,11 @@ impl Coeff {
     /// `self * x`, rounded to the nearest `I16F16` LSB (ties toward +infinity), saturating at
     /// the `I16F16` range. Error at most 0.5 LSB (`2^-17`) when not saturated.
     ///
-    /// Cost: two 32-bit multiplies, shifts and adds; no 64-bit multiply, no division, no
-    /// panic.
+    /// Cost: on ARMv6-M / ARMv8-M Baseline (Cortex-M0/M0+/M23) two 32-bit multiplies,
+    /// shifts and adds, with no call to a 64-bit multiply routine; elsewhere one
+    /// 32 x 32 -> 64-bit multiply (`smull`/`smlal` on a Cortex-M3/M4) and a range test on
+    /// the high word. Same result either way (chosen by `build.rs` from the target); no
+    /// division, no panic.
     ///
     /// ```
     /// use ctrl_core::Coeff;
@@ -245,13 +248,56 @@ impl Coeff {
     }
 }
 
-/// `round_half_up(m * xb / 2^s)` saturated to `i32`, for `|m| <= 32767`, `s <= 47`.
+/// `round_half_up(m * xb / 2^s)` saturated to `i32`, for `|m| <= 32767`, `s <= 47`: the
+/// form for the target (see `build.rs`; both forms are unit-tested against each other).
+#[inline(always)]
+const fn mul_bits(m: i32, s: u32, xb: i32) -> i32 {
+    #[cfg(ctrl_core_narrow_mul)]
+    {
+        mul_bits_narrow(m, s, xb)
+    }
+    #[cfg(not(ctrl_core_narrow_mul))]
+    {
+        mul_bits_wide(m, s, xb)
+    }
+}
+
+/// [`mul_bits`] through one `i64` product, for cores with a 32 x 32 -> 64-bit multiply
+/// (`smull` on ARMv7-M, any 64-bit host). `|m xb| < 2^46` and the rounding term is at
+/// most `2^46`, so the sum cannot overflow `i64`. The result fits `i32` exactly when the
+/// high word of the shifted sum is the sign extension of its low word: one 32-bit compare.
+#[inline(always)]
+#[cfg_attr(ctrl_core_narrow_mul, allow(dead_code))]
+const fn mul_bits_wide(m: i32, s: u32, xb: i32) -> i32 {
+    let p = m as i64 * xb as i64 + ((1i64 << s) >> 1);
+    // p >> s fits in i32 exactly when p is in -2^(31+s) .. 2^(31+s). For s >= 16 it always
+    // does (|p| <= 2^46 + 2^15, so |p >> 16| <= 2^30); for 1 <= s <= 15 it is a test on the
+    // high word alone: its bits from s - 1 up are all copies of the sign.
+    let hi = (p >> 32) as i32;
+    let fits = if s >= 16 {
+        true
+    } else if s == 0 {
+        hi == (p as i32) >> 31
+    } else {
+        (hi >> (s - 1)) == (hi >> 31)
+    };
+    if fits {
+        (p >> s) as i32
+    } else if hi < 0 {
+        i32::MIN
+    } else {
+        i32::MAX
+    }
+}
+
+/// [`mul_bits`] from two 32-bit multiplies, for cores without a 64-bit product (ARMv6-M).
 ///
 /// The 48-bit product `m * xb` is split as `p1 * 2^16 + p0` with `p1 = m * (xb >> 16)` and
 /// `p0 = m * (xb & 0xFFFF)`; both fit in `i32` exactly because `|m| <= 32767`:
 /// `|p1| <= 32767 * 32768 < 2^30`, `p0` in `[-32767 * 65535, 32767 * 65535]`.
 #[inline(always)]
-const fn mul_bits(m: i32, s: u32, xb: i32) -> i32 {
+#[cfg_attr(not(ctrl_core_narrow_mul), allow(dead_code))]
+const fn mul_bits_narrow(m: i32, s: u32, xb: i32) -> i32 {
     let p1 = m * (xb >> 16);
     let p0 = m * (xb & 0xFFFF);
     if s > 16 {
@@ -260,18 +306,25 @@ const fn mul_bits(m: i32, s: u32, xb: i32) -> i32 {
         // so the sum fits in i32 and the result cannot overflow.
         (p1 + (p0 >> 16) + (1 << (s - 17))) >> (s - 16)
     } else {
-        // result = p1 * 2^k + round(p0 / 2^s), k = 16 - s. p0 + 2^(s-1) <= 2147385345 + 32768
-        // fits. The first term saturates when p1 * 2^k leaves i32.
+        // result = p1 * 2^k + low with k = 16 - s and low = floor((p0 + 2^(s-1)) / 2^s)
+        // (p0 + 2^(s-1) <= 2147385345 + 32768 fits). Split low at bit k: the result is
+        // q * 2^k + (low mod 2^k) with q = p1 + (low >> k) (|q| < 2^30 + 2^16, no overflow),
+        // so it fits in i32 exactly when q does after the shift. (Testing p1 alone is wrong
+        // near the limit: a low part of the other sign can bring the sum back in range.)
         let k = 16 - s;
         let half = (1i32 << s) >> 1;
         let low = (p0 + half) >> s;
+        if k == 0 {
+            return p1 + low; // |p1| < 2^30, |low| < 2^16
+        }
+        let q = p1 + (low >> k);
         let lim = i32::MAX >> k;
-        if p1 > lim {
+        if q > lim {
             i32::MAX
-        } else if p1 < -lim - 1 {
+        } else if q < -lim - 1 {
             i32::MIN
         } else {
-            (p1 << k).saturating_add(low)
+            (q << k) | (low & ((1 << k) - 1))
         }
     }
 }
@@ -344,9 +397,32 @@ mod tests {
         for &m in &ms {
             for s in 0..=SHIFT_MAX {
                 for &x in &xs {
-                    assert_eq!(mul_bits(m, s, x), reference(m, s, x), "m={m} s={s} x={x}");
+                    let want = reference(m, s, x);
+                    assert_eq!(mul_bits_narrow(m, s, x), want, "narrow m={m} s={s} x={x}");
+                    assert_eq!(mul_bits_wide(m, s, x), want, "wide m={m} s={s} x={x}");
                 }
             }
+        }
+    }
+
+    #[test]
+    fn both_multiply_forms_match_the_reference_on_random_inputs() {
+        // A fixed-seed 64-bit LCG (Knuth's MMIX constants), so the cases are the same on
+        // every run; 300,000 cases spread over every shift.
+        let mut z: u64 = 0x2545_F491_4F6C_DD1D;
+        let mut next = || {
+            z = z
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            (z >> 32) as u32
+        };
+        for _ in 0..300_000 {
+            let m = (next() % 65535) as i32 - 32767;
+            let s = next() % (SHIFT_MAX + 1);
+            let x = next() as i32 >> (next() % 32);
+            let want = reference(m, s, x);
+            assert_eq!(mul_bits_narrow(m, s, x), want, "narrow m={m} s={s} x={x}");
+            assert_eq!(mul_bits_wide(m, s, x), want, "wide m={m} s={s} x={x}");
         }
     }
 
