@@ -318,13 +318,14 @@ const fn mul_bits_narrow(m: i32, s: u32, xb: i32) -> i32 {
             return p1 + low; // |p1| < 2^30, |low| < 2^16
         }
         let q = p1 + (low >> k);
-        let lim = i32::MAX >> k;
-        if q > lim {
-            i32::MAX
-        } else if q < -lim - 1 {
+        // q fits after the shift when shifting it back gives q again; the result is then
+        // q * 2^k + (low mod 2^k) = p1 * 2^k + low (a wrapping add that cannot wrap).
+        if (q << k) >> k == q {
+            (p1 << k).wrapping_add(low)
+        } else if q < 0 {
             i32::MIN
         } else {
-            (q << k) | (low & ((1 << k) - 1))
+            i32::MAX
         }
     }
 }
