@@ -274,6 +274,14 @@ fn input_only(b: &mut Bench) {
     s.out[0] = s.inputs.next_error();
 }
 
+/// The encoder part's input: reading the next two counters and storing them.
+#[inline(never)]
+fn counts_only(b: &mut Bench) {
+    let s = &mut b.p;
+    let (l, r) = s.inputs.next_counts();
+    s.out = [I16F16::from_bits(l as i32), I16F16::from_bits(r as i32)];
+}
+
 /// One `Coeff` multiply with a coefficient below 0.5 (shift above 16: no saturation branch).
 #[inline(never)]
 fn mul_small(b: &mut Bench) {
@@ -330,6 +338,10 @@ pub static PATHS: &[Path] = &[
     Path {
         name: "part_input",
         tick: input_only,
+    },
+    Path {
+        name: "part_counts",
+        tick: counts_only,
     },
     Path {
         name: "part_mul_small",
