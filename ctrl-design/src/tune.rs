@@ -618,6 +618,12 @@ impl PiDesign {
     pub fn ki_per_tick(&self, rate_hz: f64) -> f64 {
         self.ki / rate_hz
     }
+
+    /// The difference equation the firmware runs at `rate_hz`
+    /// ([`FirstOrderSection::pi`] with `kp` and [`PiDesign::ki_per_tick`]).
+    pub fn section(&self, rate_hz: f64) -> FirstOrderSection {
+        FirstOrderSection::pi(self.kp, self.ki_per_tick(rate_hz))
+    }
 }
 
 /// -3 dB bandwidth of the PI speed loop with poles `s^2 + 2 zeta wn s + wn^2`:
@@ -975,25 +981,8 @@ pub struct LoopCheck {
 /// share).
 pub fn check_rate_and_encoder(input: &LoopCheckInput) -> Result<LoopCheck, DesignError> {
     let i = input;
-    check(
-        "bandwidth_rad_s",
-        i.bandwidth_rad_s,
-        i.bandwidth_rad_s > 0.0,
-        "finite and > 0 (rad/s)",
-    )?;
-    check_rate(i.rate_hz)?;
-    check(
-        "cruise_speed",
-        i.cruise_speed,
-        i.cruise_speed >= 0.0,
-        "finite and >= 0 (units/s)",
-    )?;
-    check(
-        "count_size",
-        i.count_size,
-        i.count_size > 0.0,
-        "finite and > 0 (units)",
-    )?;
+    let rate = check_loop_rate(i.bandwidth_rad_s, i.rate_hz)?;
+    check_cruise_and_count(i.cruise_speed, i.count_size)?;
     check("kp", i.kp, i.kp > 0.0, "finite and > 0 (V per unit)")?;
     check("kd", i.kd, i.kd >= 0.0, "finite and >= 0 (V per unit/s)")?;
     check(
@@ -1002,23 +991,13 @@ pub fn check_rate_and_encoder(input: &LoopCheckInput) -> Result<LoopCheck, Desig
         i.supply_min_volts > 0.0,
         "finite and > 0 (V)",
     )?;
-    let mut warnings = Vec::new();
-    let bw_hz = i.bandwidth_rad_s / (2.0 * std::f64::consts::PI);
-    let ratio = i.rate_hz / bw_hz;
-    if ratio < MIN_RATE_PER_BANDWIDTH {
-        warnings.push(format!(
-            "loop rate {} Hz is only {ratio:.1} x the closed-loop bandwidth {bw_hz:.2} Hz (common practice: at least {MIN_RATE_PER_BANDWIDTH} x); expect less margin than the continuous design",
-            i.rate_hz
-        ));
-    }
-    let dpt = i.cruise_speed / i.rate_hz;
-    let cpt = dpt / i.count_size;
-    if i.cruise_speed > 0.0 && cpt < 1.0 {
-        warnings.push(format!(
-            "at cruise the wheel moves {cpt:.2} counts per tick: the per-tick speed reading is coarser than the speed"
-        ));
-    }
-    let step = i.kd * i.rate_hz * i.count_size;
+    let mut warnings: Vec<String> = rate.warning.into_iter().collect();
+    let ratio = rate.rate_per_bandwidth;
+    let (dpt, cpt) = cruise_resolution(i.cruise_speed, i.rate_hz, i.count_size, &mut warnings);
+    // The derivative term alone, `kd rate (e[k] - e[k-1])`: its first-tick jump per count is
+    // `kd rate count` (the proportional part is not counted here; see [`count_step`]).
+    let derivative = FirstOrderSection::pd_derivative(i.kd, i.rate_hz);
+    let step = count_step(&derivative, i.count_size, i.supply_min_volts).step_volts;
     let share = step / i.supply_min_volts;
     let mut suggested = None;
     if share > MAX_DERIVATIVE_STEP_SHARE {
@@ -1075,6 +1054,321 @@ pub fn check_rate_and_encoder(input: &LoopCheckInput) -> Result<LoopCheck, Desig
         derivative_step_volts: step,
         derivative_step_share: share,
         suggested_filter: suggested,
+        warnings,
+    })
+}
+
+/// Result of [`check_loop_rate`].
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct RateCheck {
+    /// Closed-loop -3 dB bandwidth, Hz.
+    pub bandwidth_hz: f64,
+    /// Loop rate divided by the closed-loop bandwidth in Hz.
+    pub rate_per_bandwidth: f64,
+    /// The warning when the ratio is below [`MIN_RATE_PER_BANDWIDTH`].
+    pub warning: Option<String>,
+}
+
+/// Loop rate against the closed-loop bandwidth: warns when `rate < MIN_RATE_PER_BANDWIDTH *
+/// bandwidth / (2 pi)` (common practice, no source). Any loop form.
+pub fn check_loop_rate(bandwidth_rad_s: f64, rate_hz: f64) -> Result<RateCheck, DesignError> {
+    check(
+        "bandwidth_rad_s",
+        bandwidth_rad_s,
+        bandwidth_rad_s > 0.0,
+        "finite and > 0 (rad/s)",
+    )?;
+    check_rate(rate_hz)?;
+    let bw_hz = bandwidth_rad_s / (2.0 * std::f64::consts::PI);
+    let ratio = rate_hz / bw_hz;
+    let warning = (ratio < MIN_RATE_PER_BANDWIDTH).then(|| {
+        format!(
+            "loop rate {rate_hz} Hz is only {ratio:.1} x the closed-loop bandwidth {bw_hz:.2} Hz (common practice: at least {MIN_RATE_PER_BANDWIDTH} x); expect less margin than the continuous design"
+        )
+    });
+    Ok(RateCheck {
+        bandwidth_hz: bw_hz,
+        rate_per_bandwidth: ratio,
+        warning,
+    })
+}
+
+fn check_cruise_and_count(cruise_speed: f64, count_size: f64) -> Result<(), DesignError> {
+    check(
+        "cruise_speed",
+        cruise_speed,
+        cruise_speed >= 0.0,
+        "finite and >= 0 (units/s)",
+    )?;
+    check(
+        "count_size",
+        count_size,
+        count_size > 0.0,
+        "finite and > 0 (units)",
+    )
+}
+
+/// Distance and counts per tick at cruise; warns below one count per tick.
+fn cruise_resolution(
+    cruise_speed: f64,
+    rate_hz: f64,
+    count_size: f64,
+    warnings: &mut Vec<String>,
+) -> (f64, f64) {
+    let dpt = cruise_speed / rate_hz;
+    let cpt = dpt / count_size;
+    if cruise_speed > 0.0 && cpt < 1.0 {
+        warnings.push(format!(
+            "at cruise the wheel moves {cpt:.2} counts per tick: the per-tick speed reading is coarser than the speed"
+        ));
+    }
+    (dpt, cpt)
+}
+
+/// A first-order difference equation `u[k] = b0 e[k] + b1 e[k-1] - a1 u[k-1]`, that is
+/// `C(z) = (b0 + b1 z^-1) / (1 + a1 z^-1)`: the form in which the firmware runs the lead
+/// ([`LeadCoeffs`]), the PI speed loop ([`FirstOrderSection::pi`]) and the PD's derivative
+/// term ([`FirstOrderSection::pd_derivative`]).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct FirstOrderSection {
+    /// Weight of the present input, V per input unit.
+    pub b0: f64,
+    /// Weight of the previous input, V per input unit.
+    pub b1: f64,
+    /// Weight of the previous output (enters with a minus sign).
+    pub a1: f64,
+}
+
+impl FirstOrderSection {
+    /// The discrete lead `u[k] = b0 e[k] + b1 e[k-1] - a1 u[k-1]`.
+    pub fn from_lead(c: &LeadCoeffs) -> Self {
+        FirstOrderSection {
+            b0: c.b0,
+            b1: c.b1,
+            a1: c.a1,
+        }
+    }
+
+    /// `ctrl-core`'s PI, `I[k] = I[k-1] + ki_per_tick e[k]`, `u[k] = kp e[k] + I[k]`: with
+    /// `u[k] - u[k-1] = (kp + ki_per_tick) e[k] - kp e[k-1]` it is `b0 = kp + ki_per_tick`,
+    /// `b1 = -kp`, `a1 = -1` (the integrator's pole at `z = 1`).
+    pub fn pi(kp: f64, ki_per_tick: f64) -> Self {
+        FirstOrderSection {
+            b0: kp + ki_per_tick,
+            b1: -kp,
+            a1: -1.0,
+        }
+    }
+
+    /// The PD's derivative term alone, `kd rate (e[k] - e[k-1])`: `b0 = kd rate`,
+    /// `b1 = -kd rate`, `a1 = 0`.
+    pub fn pd_derivative(kd: f64, rate_hz: f64) -> Self {
+        let g = kd * rate_hz;
+        FirstOrderSection {
+            b0: g,
+            b1: -g,
+            a1: 0.0,
+        }
+    }
+
+    /// The output's jump on the first tick of a unit step of the input, from rest: `|b0|`
+    /// (initial-value theorem of the z-transform, `u[0] = lim_{z -> inf} C(z) E(z)` with
+    /// `E(z) = 1 / (1 - z^-1)`; Ogata, "Discrete-Time Control Systems", z-transform
+    /// theorems, from memory; or directly: `e[-1] = u[-1] = 0` leave `u[0] = b0 e[0]`).
+    pub fn first_tick_gain(&self) -> f64 {
+        self.b0.abs()
+    }
+
+    /// Gain at the Nyquist frequency: `|C(z = -1)| = |b0 - b1| / |1 - a1|`, since
+    /// `z = e^{j w h} = -1` at `w = pi / h` (frequency response of a discrete transfer
+    /// function; Franklin, Powell and Workman, "Digital Control of Dynamic Systems", from
+    /// memory). It is the tick-to-tick swing per unit when the input toggles between two
+    /// values every tick. Infinite for a pole at `z = -1` (`a1 = 1`). For a Tustin-mapped
+    /// lead it is the continuous lead's high-frequency gain `Kc / alpha` exactly (Tustin maps
+    /// `s = inf` to `z = -1`).
+    pub fn high_frequency_gain(&self) -> f64 {
+        let d = (1.0 - self.a1).abs();
+        if d == 0.0 {
+            f64::INFINITY
+        } else {
+            (self.b0 - self.b1).abs() / d
+        }
+    }
+}
+
+impl From<&LeadCoeffs> for FirstOrderSection {
+    fn from(c: &LeadCoeffs) -> Self {
+        FirstOrderSection::from_lead(c)
+    }
+}
+
+/// The voltage one measurement quantum causes at a [`FirstOrderSection`]'s output.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct CountStep {
+    /// The measurement quantum: one encoder count (position loops, units) or one count per
+    /// tick (speed loops, units/s).
+    pub quantum: f64,
+    /// First-tick jump for a one-quantum step of the reading: `|b0| * quantum`, V.
+    pub step_volts: f64,
+    /// That jump as a share of the lowest supply.
+    pub step_share: f64,
+    /// Largest jump accepted: [`MAX_DERIVATIVE_STEP_SHARE`] x the lowest supply, V.
+    pub step_limit_volts: f64,
+    /// `|C(-1)|` ([`FirstOrderSection::high_frequency_gain`]), V per input unit.
+    pub high_frequency_gain: f64,
+    /// `|C(-1)| * quantum`: the tick-to-tick swing when the reading toggles between two
+    /// adjacent counts every tick, V (reported, not judged).
+    pub toggle_volts: f64,
+    /// `step_share > MAX_DERIVATIVE_STEP_SHARE`: the drive will chatter.
+    pub chatters: bool,
+}
+
+/// One measurement quantum through a section: the first-tick jump `|b0| quantum` against
+/// [`MAX_DERIVATIVE_STEP_SHARE`] of the lowest supply, the same limit the PD's derivative
+/// check uses (and the same measure its suggested derivative filter is sized by: `b0 *
+/// count`). The inputs are not range-checked here; [`check_section_rate_and_encoder`] and
+/// [`check_rate_and_encoder`] do that.
+pub fn count_step(section: &FirstOrderSection, quantum: f64, supply_min_volts: f64) -> CountStep {
+    let step = section.first_tick_gain() * quantum;
+    let share = step / supply_min_volts;
+    let hf = section.high_frequency_gain();
+    CountStep {
+        quantum,
+        step_volts: step,
+        step_share: share,
+        step_limit_volts: MAX_DERIVATIVE_STEP_SHARE * supply_min_volts,
+        high_frequency_gain: hf,
+        toggle_volts: hf * quantum,
+        chatters: share > MAX_DERIVATIVE_STEP_SHARE,
+    }
+}
+
+/// What a loop measures, which sets its measurement quantum.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Measured {
+    /// A position loop (PD, lead): the quantum is one count, `count_size` units.
+    Position,
+    /// A speed loop (PI) reading the speed as counts per tick: the quantum is one count per
+    /// tick, `count_size * rate` units/s.
+    Speed,
+}
+
+/// Inputs of [`check_section_rate_and_encoder`].
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct SectionCheckInput {
+    /// Closed-loop -3 dB bandwidth, rad/s.
+    pub bandwidth_rad_s: f64,
+    /// Loop rate, Hz.
+    pub rate_hz: f64,
+    /// Cruise speed of the fastest move, units/s (0: no per-tick check).
+    pub cruise_speed: f64,
+    /// Size of one encoder count, units.
+    pub count_size: f64,
+    /// Position or speed loop.
+    pub measured: Measured,
+    /// The controller's difference equation, V per unit (position) or per unit/s (speed).
+    pub section: FirstOrderSection,
+    /// Lowest supply voltage, V.
+    pub supply_min_volts: f64,
+}
+
+/// Result of [`check_section_rate_and_encoder`].
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct SectionCheck {
+    /// Loop rate divided by the closed-loop bandwidth in Hz.
+    pub rate_per_bandwidth: f64,
+    /// Distance per tick at cruise speed, units.
+    pub distance_per_tick: f64,
+    /// Encoder counts per tick at cruise speed.
+    pub counts_per_tick: f64,
+    /// Position or speed loop.
+    pub measured: Measured,
+    /// The voltage one quantum causes.
+    pub count_step: CountStep,
+    /// Factor on every gain of the section that puts the step at the limit
+    /// (`limit / step`; below 1 when it chatters).
+    pub gain_scale_to_limit: f64,
+    /// Largest count size at which these gains step within the limit, units.
+    pub largest_count_size: f64,
+    /// Warnings, in words.
+    pub warnings: Vec<String>,
+}
+
+/// The loop-rate and encoder checks of [`check_rate_and_encoder`] for a loop given by its
+/// difference equation (the lead, the PI): rate vs closed-loop bandwidth, counts per tick at
+/// cruise, and the first-tick voltage jump of one measurement quantum against
+/// [`MAX_DERIVATIVE_STEP_SHARE`] of the lowest supply ([`count_step`]), with the gain
+/// scale and the count size that would bring it within the limit.
+///
+/// ```
+/// use ctrl_design::tune::{check_section_rate_and_encoder, FirstOrderSection, Measured, SectionCheckInput};
+/// // A PI with kp 0.02 V/(mm/s) reading 0.5 mm counts once per tick at 500 Hz: one count per
+/// // tick is 250 mm/s, so the first tick jumps (0.02 + 0.001) * 250 = 5.25 V.
+/// let c = check_section_rate_and_encoder(&SectionCheckInput {
+///     bandwidth_rad_s: 60.0, rate_hz: 500.0, cruise_speed: 0.0, count_size: 0.5,
+///     measured: Measured::Speed, section: FirstOrderSection::pi(0.02, 0.001),
+///     supply_min_volts: 6.4,
+/// }).unwrap();
+/// assert!((c.count_step.step_volts - 5.25).abs() < 1e-12);
+/// assert!(c.count_step.chatters);
+/// ```
+pub fn check_section_rate_and_encoder(
+    input: &SectionCheckInput,
+) -> Result<SectionCheck, DesignError> {
+    let i = input;
+    let rate = check_loop_rate(i.bandwidth_rad_s, i.rate_hz)?;
+    check_cruise_and_count(i.cruise_speed, i.count_size)?;
+    for (field, v) in [
+        ("b0", i.section.b0),
+        ("b1", i.section.b1),
+        ("a1", i.section.a1),
+    ] {
+        check(field, v, true, "finite")?;
+    }
+    check(
+        "supply_min_volts",
+        i.supply_min_volts,
+        i.supply_min_volts > 0.0,
+        "finite and > 0 (V)",
+    )?;
+    let mut warnings: Vec<String> = rate.warning.into_iter().collect();
+    let (dpt, cpt) = cruise_resolution(i.cruise_speed, i.rate_hz, i.count_size, &mut warnings);
+    let quantum = match i.measured {
+        Measured::Position => i.count_size,
+        Measured::Speed => i.count_size * i.rate_hz,
+    };
+    let step = count_step(&i.section, quantum, i.supply_min_volts);
+    let scale = step.step_limit_volts / step.step_volts;
+    let largest_count = i.count_size * scale;
+    if step.chatters {
+        let what = match i.measured {
+            Measured::Position => format!("one encoder count ({} units)", i.count_size),
+            Measured::Speed => format!(
+                "one count per tick of speed reading ({quantum:.4} units/s = {} units x {} Hz)",
+                i.count_size, i.rate_hz
+            ),
+        };
+        warnings.push(format!(
+            "{what} moves the output by {:.3} V on the first tick ({:.0} % of the {} V supply, above {:.0} %): the drive will chatter",
+            step.step_volts,
+            step.step_share * 100.0,
+            i.supply_min_volts,
+            MAX_DERIVATIVE_STEP_SHARE * 100.0
+        ));
+        warnings.push(format!(
+            "to bring it within {:.0} %: scale the gains by {scale:.3} (a slower loop) or use a count of at most {largest_count:.4} units",
+            MAX_DERIVATIVE_STEP_SHARE * 100.0
+        ));
+    }
+    Ok(SectionCheck {
+        rate_per_bandwidth: rate.rate_per_bandwidth,
+        distance_per_tick: dpt,
+        counts_per_tick: cpt,
+        measured: i.measured,
+        count_step: step,
+        gain_scale_to_limit: scale,
+        largest_count_size: largest_count,
         warnings,
     })
 }

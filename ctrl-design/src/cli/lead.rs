@@ -26,6 +26,15 @@ pub struct Args {
     /// Loop rate, Hz: adds the coefficients and the discrete blocks.
     #[arg(long, allow_negative_numbers = true)]
     pub rate: Option<f64>,
+    /// Encoder count size, units (for the encoder check; needs --rate and --supply-min).
+    #[arg(long, allow_negative_numbers = true)]
+    pub count_size: Option<f64>,
+    /// Cruise speed of the fastest move, units/s (for the counts-per-tick check).
+    #[arg(long, allow_negative_numbers = true)]
+    pub cruise_speed: Option<f64>,
+    /// Lowest supply voltage, V (for the encoder-step check).
+    #[arg(long, allow_negative_numbers = true)]
+    pub supply_min: Option<f64>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
@@ -36,6 +45,9 @@ pub fn run(args: Args) -> Result<(), CliError> {
     let plant = args.plant.plant()?;
     let band = band_from(args.band)?;
     positive("--rate", args.rate, "Hz")?;
+    positive("--count-size", args.count_size, "units")?;
+    positive("--cruise-speed", args.cruise_speed, "units/s")?;
+    positive("--supply-min", args.supply_min, "V")?;
     let d = tune::design_lead(&plant, args.crossover, args.phase_margin).map_err(design_error)?;
     let coeffs = match args.rate {
         Some(r) => Some(d.discretize(r).map_err(design_error)?),
@@ -52,15 +64,10 @@ pub fn run(args: Args) -> Result<(), CliError> {
     );
     let mut warnings = d.warnings.clone();
     report_warnings(&rep, &mut warnings);
-    if let (Some(r), Some(bw)) = (args.rate, rep.continuous.bandwidth_rad_s) {
-        let ratio = r / (bw / (2.0 * std::f64::consts::PI));
-        if ratio < tune::MIN_RATE_PER_BANDWIDTH {
-            warnings.push(format!(
-                "loop rate {r} Hz is only {ratio:.1} x the closed-loop bandwidth (common practice: at least {} x)",
-                tune::MIN_RATE_PER_BANDWIDTH
-            ));
-        }
-    }
+    let checks = match (&coeffs, rep.continuous.bandwidth_rad_s) {
+        (Some(c), Some(bw)) => loop_checks(c, bw, &args, &mut warnings)?,
+        _ => None,
+    };
     match args.format {
         Format::Json => {
             let mut out = serde_json::Map::new();
@@ -72,6 +79,9 @@ pub fn run(args: Args) -> Result<(), CliError> {
                 out.extend(m);
             }
             out.insert("feedforward".into(), to_value(&tune::feedforward(&plant)));
+            if let Some(c) = &checks {
+                out.insert("checks".into(), to_value(c));
+            }
             out.insert("warnings".into(), to_value(&warnings));
             print_json(&serde_json::Value::Object(out))
         }
@@ -101,6 +111,9 @@ pub fn run(args: Args) -> Result<(), CliError> {
                     c.rate_hz, d.crossover_rad_s, c.b0, c.b1, c.a1
                 );
             }
+            if let Some(c) = &checks {
+                let _ = write!(buf, "{}", check_line(c));
+            }
             let _ = writeln!(buf);
             let _ = write!(buf, "{}", report_table(&rep));
             for w in &warnings {
@@ -109,4 +122,55 @@ pub fn run(args: Args) -> Result<(), CliError> {
             emit(&buf)
         }
     }
+}
+
+/// The loop-rate check, and with `--count-size` and `--supply-min` the encoder checks of the
+/// discrete lead (`tune::check_section_rate_and_encoder`, the same limits as `pd`'s); their
+/// warnings go to `warnings`.
+fn loop_checks(
+    coeffs: &tune::LeadCoeffs,
+    bandwidth_rad_s: f64,
+    args: &Args,
+    warnings: &mut Vec<String>,
+) -> Result<Option<tune::SectionCheck>, CliError> {
+    match (args.count_size, args.supply_min) {
+        (Some(count_size), Some(supply_min_volts)) => {
+            let c = tune::check_section_rate_and_encoder(&tune::SectionCheckInput {
+                bandwidth_rad_s,
+                rate_hz: coeffs.rate_hz,
+                cruise_speed: args.cruise_speed.unwrap_or(0.0),
+                count_size,
+                measured: tune::Measured::Position,
+                section: tune::FirstOrderSection::from_lead(coeffs),
+                supply_min_volts,
+            })
+            .map_err(design_error)?;
+            warnings.extend(c.warnings.iter().cloned());
+            Ok(Some(c))
+        }
+        _ => {
+            let r = tune::check_loop_rate(bandwidth_rad_s, coeffs.rate_hz).map_err(design_error)?;
+            warnings.extend(r.warning);
+            Ok(None)
+        }
+    }
+}
+
+/// One text line of the encoder checks (`lead` and `pi`).
+pub(crate) fn check_line(c: &tune::SectionCheck) -> String {
+    let s = &c.count_step;
+    let what = match c.measured {
+        tune::Measured::Position => "one count".to_string(),
+        tune::Measured::Speed => format!("one count per tick ({:.4} units/s)", s.quantum),
+    };
+    format!(
+        "  loop rate / bandwidth {:.1}; {:.4} units ({:.2} counts) per tick at cruise; {what} moves the output by {:.4} V on the first tick ({:.1} % of supply, limit {:.0} %), {:.4} V tick to tick when the reading toggles\n",
+        c.rate_per_bandwidth,
+        c.distance_per_tick,
+        c.counts_per_tick,
+        s.step_volts,
+        s.step_share * 100.0,
+        tune::MAX_DERIVATIVE_STEP_SHARE * 100.0,
+        s.toggle_volts
+    )
 }

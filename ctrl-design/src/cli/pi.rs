@@ -25,6 +25,15 @@ pub struct Args {
     /// Loop rate, Hz: adds the per-tick gain and the discrete blocks.
     #[arg(long, allow_negative_numbers = true)]
     pub rate: Option<f64>,
+    /// Encoder count size, units (for the encoder check; needs --rate and --supply-min).
+    #[arg(long, allow_negative_numbers = true)]
+    pub count_size: Option<f64>,
+    /// Cruise speed of the fastest move, units/s (for the counts-per-tick check).
+    #[arg(long, allow_negative_numbers = true)]
+    pub cruise_speed: Option<f64>,
+    /// Lowest supply voltage, V (for the encoder-step check).
+    #[arg(long, allow_negative_numbers = true)]
+    pub supply_min: Option<f64>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
@@ -35,19 +44,39 @@ pub fn run(args: Args) -> Result<(), CliError> {
     let plant = args.plant.plant()?;
     let band = band_from(args.band)?;
     positive("--rate", args.rate, "Hz")?;
+    positive("--count-size", args.count_size, "units")?;
+    positive("--cruise-speed", args.cruise_speed, "units/s")?;
+    positive("--supply-min", args.supply_min, "V")?;
     let d = tune::design_pi(&plant, args.bandwidth, args.damping).map_err(design_error)?;
     let rep = analysis::report_pi(&plant, d.kp, d.ki, args.rate, band);
     let mut warnings = Vec::new();
     report_warnings(&rep, &mut warnings);
-    if let Some(r) = args.rate {
-        let ratio = r / (args.bandwidth / (2.0 * std::f64::consts::PI));
-        if ratio < tune::MIN_RATE_PER_BANDWIDTH {
-            warnings.push(format!(
-                "loop rate {r} Hz is only {ratio:.1} x the closed-loop bandwidth (common practice: at least {} x)",
-                tune::MIN_RATE_PER_BANDWIDTH
-            ));
+    let bw = rep.continuous.bandwidth_rad_s.unwrap_or(d.bandwidth_rad_s);
+    let checks = match (args.rate, args.count_size, args.supply_min) {
+        (Some(rate_hz), Some(count_size), Some(supply_min_volts)) => {
+            // The firmware reads the speed as counts per tick: one count per tick is the
+            // speed quantum `count_size * rate`, and kp + ki_per_tick is the first tick's
+            // weight on it.
+            let c = tune::check_section_rate_and_encoder(&tune::SectionCheckInput {
+                bandwidth_rad_s: bw,
+                rate_hz,
+                cruise_speed: args.cruise_speed.unwrap_or(0.0),
+                count_size,
+                measured: tune::Measured::Speed,
+                section: d.section(rate_hz),
+                supply_min_volts,
+            })
+            .map_err(design_error)?;
+            warnings.extend(c.warnings.iter().cloned());
+            Some(c)
         }
-    }
+        (Some(rate_hz), _, _) => {
+            let r = tune::check_loop_rate(bw, rate_hz).map_err(design_error)?;
+            warnings.extend(r.warning);
+            None
+        }
+        _ => None,
+    };
     match args.format {
         Format::Json => {
             let mut out = serde_json::Map::new();
@@ -61,6 +90,9 @@ pub fn run(args: Args) -> Result<(), CliError> {
                 out.extend(m);
             }
             out.insert("feedforward".into(), to_value(&tune::feedforward(&plant)));
+            if let Some(c) = &checks {
+                out.insert("checks".into(), to_value(c));
+            }
             out.insert("warnings".into(), to_value(&warnings));
             print_json(&serde_json::Value::Object(out))
         }
@@ -78,6 +110,9 @@ pub fn run(args: Args) -> Result<(), CliError> {
             );
             if let Some(r) = args.rate {
                 let _ = writeln!(buf, "  ki per tick {:.8} at {r} Hz", d.ki_per_tick(r));
+            }
+            if let Some(c) = &checks {
+                let _ = write!(buf, "{}", super::lead::check_line(c));
             }
             let _ = writeln!(buf);
             let _ = write!(buf, "{}", report_table(&rep));
