@@ -136,6 +136,40 @@ impl From<LeadLoopDesign> for AxisDesign {
     }
 }
 
+/// The `f64` twin of `ctrl_core::stall::StallGuard`, in user units: `|tracking error| >
+/// limit` for `ticks` consecutive ticks latches a fault and the loop's command is 0 from that
+/// tick on; one tick with `|error| <= limit` resets the count; `ticks == 0` is treated as 1.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct IdealStallGuard {
+    limit: f64,
+    ticks: u32,
+}
+
+impl IdealStallGuard {
+    /// A guard that never trips.
+    pub const OFF: IdealStallGuard = IdealStallGuard {
+        limit: f64::INFINITY,
+        ticks: u32::MAX,
+    };
+
+    /// Limit in units (used as a magnitude) and consecutive ticks over it.
+    pub fn new(limit_units: f64, ticks: u32) -> Self {
+        IdealStallGuard {
+            limit: limit_units.abs(),
+            ticks: ticks.max(1),
+        }
+    }
+
+    /// The same guard as a firmware one (its held limit in counts times `count_size`, its
+    /// ticks), so both loops trip on the same errors.
+    pub fn from_firmware(guard: &ctrl_core::stall::StallGuard, count_size: f64) -> Self {
+        IdealStallGuard::new(
+            guard.limit().to_num::<f64>() * count_size,
+            u32::from(guard.ticks()),
+        )
+    }
+}
+
 /// The trapezoidal (or triangular) move of `distance` from rest to rest, sampled exactly.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct MoveF64 {
@@ -243,6 +277,9 @@ pub struct IdealLoop {
     prev_error: f64,
     prev_output: f64,
     feedback_limit_volts: f64,
+    stall: IdealStallGuard,
+    stall_over: u32,
+    stall_tripped: bool,
 }
 
 impl IdealLoop {
@@ -271,7 +308,21 @@ impl IdealLoop {
             prev_error: 0.0,
             prev_output: 0.0,
             feedback_limit_volts: f64::INFINITY,
+            stall: IdealStallGuard::OFF,
+            stall_over: 0,
+            stall_tripped: false,
         }
+    }
+
+    /// Sets the stall guard (off by default). Once it trips the command is 0 until the end
+    /// of the run, as the firmware loop's duties are.
+    pub fn set_stall_guard(&mut self, guard: IdealStallGuard) {
+        self.stall = guard;
+    }
+
+    /// `true` once the stall guard has tripped (it latches).
+    pub fn is_stalled(&self) -> bool {
+        self.stall_tripped
     }
 
     /// Clamps the lead form's output at `±volts` (> 0; the firmware uses the supply), as
@@ -364,6 +415,14 @@ impl Controller for IdealLoop {
         };
         self.prev_error = e;
         self.prev_measured = m.position;
+        if e.abs() > self.stall.limit {
+            self.stall_over = self.stall_over.saturating_add(1);
+        } else {
+            self.stall_over = 0;
+        }
+        if self.stall_over >= self.stall.ticks {
+            self.stall_tripped = true;
+        }
         let ff = match feedforward {
             Some(f) => f.volts(&sp),
             None => 0.0,
@@ -372,8 +431,13 @@ impl Controller for IdealLoop {
             setpoint: sp,
             feedforward_volts: ff,
             feedback_volts: fb,
-            command_volts: ff + fb,
+            command_volts: if self.stall_tripped { 0.0 } else { ff + fb },
         }
+    }
+
+    #[inline]
+    fn stalled(&self) -> bool {
+        self.stall_tripped
     }
 }
 

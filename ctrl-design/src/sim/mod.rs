@@ -26,7 +26,8 @@ pub use firmware::{
     QuantizeError, Quantized, QuantizedAxis, QuantizedLead, MAX_RELATIVE_ERROR,
 };
 pub use ideal::{
-    AxisDesign, DerivativeForm, Feedforward, IdealLoop, LeadLoopDesign, LoopDesign, MoveF64,
+    AxisDesign, DerivativeForm, Feedforward, IdealLoop, IdealStallGuard, LeadLoopDesign,
+    LoopDesign, MoveF64,
 };
 pub use metrics::Metrics;
 pub use plot::plot_svg;
