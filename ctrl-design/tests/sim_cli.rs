@@ -416,6 +416,8 @@ fn simulate_reports_the_stall_guard_trip_and_refuses_bad_lead_input() {
         "20",
         "--stall-time",
         "0.1",
+        "--arithmetic",
+        "both",
         "--format",
         "json",
     ]));
@@ -424,6 +426,10 @@ fn simulate_reports_the_stall_guard_trip_and_refuses_bad_lead_input() {
     let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     let k = v["runs"][0]["metrics"]["stall_tick"].as_u64().unwrap();
     assert!((50..=143).contains(&k), "tick {k}");
+    // The f64 run has the same guard (the firmware's held limit and ticks) and trips on the
+    // same tick: both read whole counts of the same blocked drive.
+    assert_eq!(v["runs"][1]["arithmetic"], "f64");
+    assert_eq!(v["runs"][1]["metrics"]["stall_tick"].as_u64(), Some(k));
     for (flag, value, name) in [
         ("--lead-a1", "1.5", "--lead-a1"),
         ("--stall-time", "-1", "--stall-time"),

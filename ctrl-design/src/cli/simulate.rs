@@ -5,8 +5,8 @@ use super::{CliError, Format};
 use ctrl_design::analysis::SettlingBand;
 use ctrl_design::sim::{
     self, AxisDesign, AxisKind, AxisQuantization, Command, DerivativeForm, Disturbance,
-    Feedforward, FirmwareLoop, FirmwareUnits, IdealLoop, LeadLoopDesign, LoopDesign, Metrics,
-    SimConfig, SimError, Trace,
+    Feedforward, FirmwareLoop, FirmwareUnits, IdealLoop, IdealStallGuard, LeadLoopDesign,
+    LoopDesign, Metrics, SimConfig, SimError, Trace,
 };
 use ctrl_design::tune;
 use ctrl_design::Plant;
@@ -278,11 +278,25 @@ impl Setup {
     }
 
     /// The `f64` loop; the lead form's output is limited to the supply like the firmware's.
+    /// With `--stall-limit` it gets the stall guard too: the firmware guard's held limit and
+    /// ticks when a count size is given (so both loops trip on the same errors), else the
+    /// limit as given and `round(time * rate)` ticks.
     pub fn ideal_loop(&self) -> IdealLoop {
         let mut lp =
             IdealLoop::with_design(&self.design, &self.config.command, self.config.rate_hz);
         if self.config.supply_volts.is_finite() {
             lp.set_feedback_limit(self.config.supply_volts);
+        }
+        if let Some((limit, time_s)) = self.stall {
+            let held = self.units().ok().and_then(|units| {
+                sim::stall_guard(limit, time_s, &units)
+                    .ok()
+                    .map(|g| IdealStallGuard::from_firmware(&g, units.count_size))
+            });
+            let ticks = (time_s * self.config.rate_hz)
+                .round()
+                .clamp(1.0, f64::from(u32::MAX)) as u32;
+            lp.set_stall_guard(held.unwrap_or_else(|| IdealStallGuard::new(limit, ticks)));
         }
         lp
     }
