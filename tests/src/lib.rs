@@ -35,16 +35,49 @@ pub fn firmware_target_dir(name: &str) -> PathBuf {
     base.join("demo-firmware").join(name)
 }
 
+/// A core the demo firmware builds for, and the QEMU machine that runs it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct FirmwareCore {
+    /// The Rust target triple (`--target`).
+    pub target: &'static str,
+    /// `qemu-system-arm` arguments that pick the machine (and CPU) for that target.
+    pub qemu_machine: &'static [&'static str],
+}
+
+/// The Cortex-M3 of QEMU's `lm3s6965evb`: the firmware's default target
+/// (its `.cargo/config.toml`).
+pub const CORTEX_M3: FirmwareCore = FirmwareCore {
+    target: "thumbv7m-none-eabi",
+    qemu_machine: &["-cpu", "cortex-m3", "-machine", "lm3s6965evb"],
+};
+
+/// The Cortex-M0 (nRF51822) of QEMU's `microbit` (the machine fixes its CPU).
+pub const CORTEX_M0: FirmwareCore = FirmwareCore {
+    target: "thumbv6m-none-eabi",
+    qemu_machine: &["-machine", "microbit"],
+};
+
 /// Builds the demo firmware (release, thumbv7m-none-eabi from its `.cargo/config.toml`)
 /// into `target_dir`, with `design` as its design file (`CTRL_DESIGN_FILE`) or the default
 /// `rover.toml`. Returns cargo's output; the caller judges success.
 pub fn build_firmware(design: Option<&Path>, target_dir: &Path) -> Output {
+    build_firmware_for(CORTEX_M3, design, target_dir)
+}
+
+/// [`build_firmware`] for `core` (`--target core.target`).
+pub fn build_firmware_for(core: FirmwareCore, design: Option<&Path>, target_dir: &Path) -> Output {
     let cargo = std::env::var_os("CARGO").unwrap_or_else(|| "cargo".into());
     let mut cmd = Command::new(cargo);
     cmd.current_dir(firmware_dir())
-        .args(["build", "--release", "--target-dir"])
+        .args([
+            "build",
+            "--release",
+            "--target",
+            core.target,
+            "--target-dir",
+        ])
         .arg(target_dir)
-        // The firmware's own .cargo/config.toml picks the target; the host's must not.
+        // The firmware's target is chosen here; the host's must not leak in.
         .env_remove("CARGO_BUILD_TARGET")
         .env_remove("CARGO_TARGET_DIR");
     match design {
@@ -54,16 +87,21 @@ pub fn build_firmware(design: Option<&Path>, target_dir: &Path) -> Output {
     cmd.output().expect("cargo can be started")
 }
 
-/// The firmware image a release build in `target_dir` produces.
+/// The firmware image a thumbv7m-none-eabi release build in `target_dir` produces.
 pub fn firmware_elf(target_dir: &Path) -> PathBuf {
-    target_dir.join("thumbv7m-none-eabi/release/demo-firmware")
+    firmware_elf_for(CORTEX_M3, target_dir)
 }
 
-/// The Rust target the demo firmware builds for (its `.cargo/config.toml`).
-pub const FIRMWARE_TARGET: &str = "thumbv7m-none-eabi";
+/// The firmware image a release build for `core` in `target_dir` produces.
+pub fn firmware_elf_for(core: FirmwareCore, target_dir: &Path) -> PathBuf {
+    target_dir.join(core.target).join("release/demo-firmware")
+}
 
-/// `true` when the firmware's target is installed in the toolchain that runs the tests
-/// (`rustc --print target-libdir --target thumbv7m-none-eabi` exists).
+/// The Rust target the demo firmware builds for by default (its `.cargo/config.toml`).
+pub const FIRMWARE_TARGET: &str = CORTEX_M3.target;
+
+/// `true` when the firmware's default target is installed in the toolchain that runs the
+/// tests (`rustc --print target-libdir --target thumbv7m-none-eabi` holds `core`).
 pub fn firmware_target_installed() -> bool {
     target_installed(FIRMWARE_TARGET)
 }
@@ -95,10 +133,16 @@ pub fn target_installed(target: &str) -> bool {
 /// (this prints why and returns `false`), unless `CTRL_REQUIRE_QEMU=1` (set by CI), which
 /// turns the skip into a failure.
 pub fn firmware_prerequisites(need_qemu: bool) -> bool {
+    firmware_prerequisites_for(CORTEX_M3, need_qemu)
+}
+
+/// [`firmware_prerequisites`] for `core`'s target.
+pub fn firmware_prerequisites_for(core: FirmwareCore, need_qemu: bool) -> bool {
+    let target = core.target;
     let mut missing = Vec::new();
-    if !firmware_target_installed() {
+    if !target_installed(target) {
         missing.push(format!(
-            "the Rust target {FIRMWARE_TARGET} (rustup target add {FIRMWARE_TARGET})"
+            "the Rust target {target} (rustup target add {target})"
         ));
     }
     if need_qemu && !qemu_available() {
@@ -146,8 +190,14 @@ pub struct QemuRun {
 /// Runs `elf` on the emulated LM3S6965 (Cortex-M3) with semihosting; kills it after
 /// `timeout` and panics then (a firmware that never exits is a failure).
 pub fn run_qemu(elf: &Path, timeout: Duration) -> QemuRun {
+    run_qemu_on(CORTEX_M3, elf, timeout)
+}
+
+/// [`run_qemu`] on `core`'s QEMU machine.
+pub fn run_qemu_on(core: FirmwareCore, elf: &Path, timeout: Duration) -> QemuRun {
     let mut child = Command::new("qemu-system-arm")
-        .args(["-cpu", "cortex-m3", "-machine", "lm3s6965evb", "-nographic"])
+        .args(core.qemu_machine)
+        .arg("-nographic")
         .args(["-semihosting-config", "enable=on,target=native", "-kernel"])
         .arg(elf)
         .stdin(Stdio::null())

@@ -1,9 +1,13 @@
-//! The demo firmware, built for thumbv7m-none-eabi from the demo design, runs its route on
-//! the emulated LM3S6965 (qemu-system-arm, semihosting) and its reported results agree with
-//! the host simulation of the same design.
+//! The demo firmware, built from the demo design for thumbv7m-none-eabi (the emulated
+//! LM3S6965, Cortex-M3) and for thumbv6m-none-eabi (the emulated nRF51822 of QEMU's
+//! `microbit`, Cortex-M0), runs its route under qemu-system-arm with semihosting, and on
+//! each core its reported results agree with the host simulation of the same design, with
+//! the same tolerances. The two cores use the two forms of `ctrl-core`'s `Coeff` multiply
+//! (one `i64` product on the M3, two 32-bit multiplies on the M0), which must be
+//! bit-identical, so the two cores must also print the very same `MOVE` lines.
 //!
-//! Without `qemu-system-arm` the test says so and passes, unless `CTRL_REQUIRE_QEMU=1`
-//! (CI sets it), which turns the skip into a failure.
+//! Without `qemu-system-arm` or a core's Rust target a test says so and passes, unless
+//! `CTRL_REQUIRE_QEMU=1` (CI sets it), which turns the skip into a failure.
 //!
 //! Tolerance (stated here, checked below), per free move, firmware against host:
 //! - final tracking error within [`FINAL_ERROR_TOL_COUNTS`] counts. Both rest inside the
@@ -20,8 +24,9 @@ use std::time::Duration;
 use ctrl_design::emit::{self, emit, AxisReport, Emission};
 use ctrl_design::sim;
 use ctrl_tests::{
-    build_firmware, firmware_elf, firmware_prerequisites, firmware_target_dir, parse_moves,
-    rover_dir, run_qemu, MoveReport,
+    build_firmware, build_firmware_for, firmware_elf_for, firmware_prerequisites,
+    firmware_prerequisites_for, firmware_target_dir, parse_moves, rover_dir, run_qemu_on,
+    FirmwareCore, MoveReport, CORTEX_M0, CORTEX_M3,
 };
 
 /// Largest |firmware - host| final tracking error, counts.
@@ -42,28 +47,74 @@ fn host_move(e: &Emission, r: &AxisReport, distance: f64) -> sim::Metrics {
 
 #[test]
 fn firmware_route_under_qemu_matches_the_host_simulation() {
-    if !firmware_prerequisites(true) {
+    route_matches_the_host_simulation(CORTEX_M3);
+}
+
+#[test]
+fn firmware_route_on_the_cortex_m0_under_qemu_matches_the_host_simulation() {
+    route_matches_the_host_simulation(CORTEX_M0);
+}
+
+#[test]
+fn firmware_route_prints_the_same_moves_on_the_cortex_m0_and_m3() {
+    if !firmware_prerequisites_for(CORTEX_M3, true) || !firmware_prerequisites_for(CORTEX_M0, true)
+    {
         return;
     }
+    let m3 = route_output(CORTEX_M3);
+    let m0 = route_output(CORTEX_M0);
+    let lines = |s: &str| -> Vec<String> {
+        s.lines()
+            .filter(|l| l.starts_with("MOVE ") || l.starts_with("ROUTE "))
+            .map(str::to_string)
+            .collect()
+    };
+    let (m3, m0) = (lines(&m3), lines(&m0));
+    assert_eq!(m3.len(), 9, "{m3:?}");
+    assert_eq!(
+        m0, m3,
+        "the Cortex-M0 (two 32-bit multiplies) and the Cortex-M3 (one i64 product) \
+         must compute the same route"
+    );
+}
+
+/// Builds the firmware for `core`, runs it under QEMU and returns what it printed, after
+/// checking that it exited with status 0.
+fn route_output(core: FirmwareCore) -> String {
     let target = firmware_target_dir("tests");
-    let out = build_firmware(None, &target);
+    let out = build_firmware_for(core, None, &target);
     assert!(
         out.status.success(),
-        "the demo firmware does not build:\n{}",
+        "the demo firmware does not build for {}:\n{}",
+        core.target,
         String::from_utf8_lossy(&out.stderr)
     );
-    let run = run_qemu(&firmware_elf(&target), Duration::from_secs(120));
-    println!("{}", run.stdout);
+    let run = run_qemu_on(
+        core,
+        &firmware_elf_for(core, &target),
+        Duration::from_secs(120),
+    );
     assert_eq!(
         run.code,
         Some(0),
-        "the firmware reported a failure:\n{}\n{}",
+        "the firmware reported a failure on {}:\n{}\n{}",
+        core.target,
         run.stdout,
         run.stderr
     );
-    assert!(run.stdout.contains("ROUTE ok=1"), "{}", run.stdout);
-    let moves = parse_moves(&run.stdout);
-    assert_eq!(moves.len(), 7, "{}", run.stdout);
+    run.stdout
+}
+
+/// The route on `core` under QEMU against the host simulation, within the tolerances above.
+fn route_matches_the_host_simulation(core: FirmwareCore) {
+    if !firmware_prerequisites_for(core, true) {
+        return;
+    }
+    let stdout = route_output(core);
+    println!("{}:\n{stdout}", core.target);
+    assert!(stdout.contains("ROUTE ok=1"), "{stdout}");
+    let moves = parse_moves(&stdout);
+    assert_eq!(moves.len(), 7, "{stdout}");
 
     let e = emit(&rover_dir().join("rover.toml")).unwrap_or_else(|f| panic!("{f}"));
     let mut compared = 0;
@@ -83,20 +134,23 @@ fn firmware_route_under_qemu_matches_the_host_simulation() {
         let host_counts = host.final_error * r.counts_per_unit;
         let fw_counts = m.num("final_error_counts");
         println!(
-            "move {}: final error firmware {fw_counts:.3} counts, host {host_counts:.3}; peak duty firmware {:.3}, host {:.3}",
+            "{} move {}: final error firmware {fw_counts:.3} counts, host {host_counts:.3}; peak duty firmware {:.3}, host {:.3}",
+            core.target,
             m.index,
             m.num("peak_duty"),
             host.peak_volts / BATTERY_VOLTS
         );
         assert!(
             (fw_counts - host_counts).abs() <= FINAL_ERROR_TOL_COUNTS,
-            "move {}: final error {fw_counts} counts on the target, {host_counts} on the host",
+            "{} move {}: final error {fw_counts} counts on the target, {host_counts} on the host",
+            core.target,
             m.index
         );
         let host_duty = host.peak_volts / BATTERY_VOLTS;
         assert!(
             (m.num("peak_duty") - host_duty).abs() <= PEAK_DUTY_TOL,
-            "move {}: peak duty {} on the target, {host_duty} on the host",
+            "{} move {}: peak duty {} on the target, {host_duty} on the host",
+            core.target,
             m.index,
             m.num("peak_duty")
         );
