@@ -264,15 +264,15 @@ const fn mul_bits(m: i32, s: u32, xb: i32) -> i32 {
 
 /// [`mul_bits`] through one `i64` product, for cores with a 32 x 32 -> 64-bit multiply
 /// (`smull` on ARMv7-M, any 64-bit host). `|m xb| < 2^46` and the rounding term is at
-/// most `2^46`, so the sum cannot overflow `i64`. The result fits `i32` exactly when the
-/// high word of the shifted sum is the sign extension of its low word: one 32-bit compare.
+/// most `2^46`, so the sum cannot overflow `i64`. Whether the result fits `i32` is read
+/// from the high word of the sum (one 32-bit shift and compare), and only for shifts below 16.
 #[inline(always)]
 #[cfg_attr(ctrl_core_narrow_mul, allow(dead_code))]
 const fn mul_bits_wide(m: i32, s: u32, xb: i32) -> i32 {
     let p = m as i64 * xb as i64 + ((1i64 << s) >> 1);
     // p >> s fits in i32 exactly when p is in -2^(31+s) .. 2^(31+s). For s >= 16 it always
-    // does (|p| <= 2^46 + 2^15, so |p >> 16| <= 2^30); for 1 <= s <= 15 it is a test on the
-    // high word alone: its bits from s - 1 up are all copies of the sign.
+    // does (|p| < 2^46 + 2^(s-1), so |p >> s| <= 2^30 + 1); for 1 <= s <= 15 it is a test on
+    // the high word alone: its bits from s - 1 up are all copies of the sign.
     let hi = (p >> 32) as i32;
     let fits = if s >= 16 {
         true
