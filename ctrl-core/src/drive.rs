@@ -178,7 +178,9 @@ impl AxisState {
         self.stall.is_tripped()
     }
 
-    /// The last tick's values.
+    /// The last tick's values. Setpoint and speed are read from the profile, so after a
+    /// profile command (`start`, `hold`, `stop`, `clear_fault`) they show the new state
+    /// until the next tick; error and voltages are the last tick's.
     ///
     /// ```
     /// use ctrl_core::drive::AxisState;
@@ -214,6 +216,8 @@ impl AxisState {
         self.stall.clear();
         self.profile = Profile::at(measured);
         self.error = I16F16::ZERO;
+        self.feedforward = I16F16::ZERO;
+        self.feedback = I16F16::ZERO;
         self.pd = PdState::new();
         self.lead = LeadState::new();
     }
