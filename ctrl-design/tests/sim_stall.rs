@@ -1,6 +1,8 @@
 //! The stall guard in the simulated firmware loop (`ctrl-core`'s `StallGuard` through
 //! `Axis`): a blocked wheel trips it within a number of ticks worked out from the move, a
 //! normal move does not, and the tripped loop's duties are those of `TwoAxisDrive::tick`.
+//! The `f64` loop's guard (`IdealStallGuard`, the twin of `ctrl_core::stall::StallGuard`)
+//! trips on the same tick as the fixed-point loop's, and neither trips on the nominal move.
 
 use ctrl_core::drive::{Axis, DriveState, Feedback, TwoAxisDrive};
 use ctrl_core::encoder::Encoders;
@@ -10,8 +12,8 @@ use ctrl_core::supply::Supply;
 use ctrl_core::Coeff;
 use ctrl_design::sim::{
     quantize_axis, quantize_move, simulate, simulate_traced, stall_guard, AxisKind, Command,
-    DerivativeForm, Disturbance, Feedforward, FirmwareLoop, FirmwareUnits, LoopDesign, SimConfig,
-    MAX_RELATIVE_ERROR,
+    DerivativeForm, Disturbance, Feedforward, FirmwareLoop, FirmwareUnits, IdealLoop,
+    IdealStallGuard, LoopDesign, SimConfig, MAX_RELATIVE_ERROR,
 };
 use ctrl_design::Plant;
 use fixed::types::I16F16;
@@ -20,7 +22,8 @@ const COUNT: f64 = 0.36652; // mm, the demo rover's encoder (invented numbers)
 const LIMIT_MM: f64 = 20.0;
 const GUARD_S: f64 = 0.1; // 50 ticks at 500 Hz
 
-fn setup(load_volts: Option<f64>) -> (SimConfig, FirmwareLoop) {
+/// The demo PD design, its firmware units and the 400 mm move.
+fn parts() -> (Plant, LoopDesign, FirmwareUnits, Command) {
     let plant = Plant::new(180.0, 0.09, 0.7).unwrap();
     let d = LoopDesign {
         kp: 0.12,
@@ -37,6 +40,11 @@ fn setup(load_volts: Option<f64>) -> (SimConfig, FirmwareLoop) {
         cruise_speed: 400.0,
         accel: 1200.0,
     };
+    (plant, d, units, command)
+}
+
+fn setup(load_volts: Option<f64>) -> (SimConfig, FirmwareLoop) {
+    let (plant, d, units, command) = parts();
     let cfg = SimConfig {
         plant,
         rate_hz: 500.0,
@@ -55,6 +63,16 @@ fn setup(load_volts: Option<f64>) -> (SimConfig, FirmwareLoop) {
         FirmwareLoop::from_design(&d, AxisKind::Forward, &units, 6.4, &command).unwrap();
     lp.set_stall_guard(stall_guard(LIMIT_MM, GUARD_S, &units).unwrap());
     (cfg, lp)
+}
+
+/// The `f64` twin of [`setup`]'s loop on the same profile, holding the firmware guard's
+/// limit and ticks (`IdealStallGuard::from_firmware`).
+fn ideal_twin() -> IdealLoop {
+    let (_, d, units, command) = parts();
+    let g = stall_guard(LIMIT_MM, GUARD_S, &units).unwrap();
+    let mut id = IdealLoop::on_firmware_profile(&d, &command, &units).unwrap();
+    id.set_stall_guard(IdealStallGuard::from_firmware(&g, COUNT));
+    id
 }
 
 // A load far beyond the supply (50 V equivalent against a 6.4 V supply) holds the wheel at
@@ -163,4 +181,34 @@ fn tripped_duties_equal_the_two_axis_drive() {
         }
     }
     assert!(tripped_at.is_some(), "the lagging wheel trips the guard");
+}
+
+// The blocked-wheel run of `a_blocked_wheel_trips_the_guard_in_time`: the 50-tick guard trips
+// no earlier than tick 50 and no later than tick 92 + 50 + 1, and on the same tick in the
+// fixed-point and the f64 loop.
+#[test]
+fn both_loops_trip_on_the_same_tick() {
+    let (cfg, mut fx) = setup(Some(-50.0));
+    let mut id = ideal_twin();
+    let mf = simulate(&cfg, &mut fx);
+    let (mi, t) = simulate_traced(&cfg, &mut id);
+    let kf = mf.stall_tick.expect("fixed trips");
+    let ki = mi.stall_tick.expect("f64 trips");
+    assert_eq!(kf, ki);
+    assert!((50..=143).contains(&ki), "{ki}");
+    assert!(id.is_stalled());
+    assert!(t.applied_volts[ki as usize + 1..].iter().all(|&v| v == 0.0));
+}
+
+#[test]
+fn neither_loop_trips_on_the_nominal_move() {
+    let (cfg, mut fx) = setup(None);
+    let mut id = ideal_twin();
+    assert_eq!(simulate(&cfg, &mut fx).stall_tick, None);
+    let m = simulate(&cfg, &mut id);
+    assert_eq!(m.stall_tick, None);
+    // and the guard changes nothing in the f64 run.
+    let mut off = ideal_twin();
+    off.set_stall_guard(IdealStallGuard::OFF);
+    assert_eq!(simulate(&cfg, &mut off), m);
 }
