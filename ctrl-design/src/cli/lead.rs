@@ -26,15 +26,9 @@ pub struct Args {
     /// Loop rate, Hz: adds the coefficients and the discrete blocks.
     #[arg(long, allow_negative_numbers = true)]
     pub rate: Option<f64>,
-    /// Encoder count size, units (for the encoder check; needs --rate and --supply-min).
-    #[arg(long, allow_negative_numbers = true)]
-    pub count_size: Option<f64>,
-    /// Cruise speed of the fastest move, units/s (for the counts-per-tick check).
-    #[arg(long, allow_negative_numbers = true)]
-    pub cruise_speed: Option<f64>,
-    /// Lowest supply voltage, V (for the encoder-step check).
-    #[arg(long, allow_negative_numbers = true)]
-    pub supply_min: Option<f64>,
+    /// Encoder and supply flags of the loop checks.
+    #[command(flatten)]
+    pub checks: super::CheckArgs,
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
@@ -45,9 +39,7 @@ pub fn run(args: Args) -> Result<(), CliError> {
     let plant = args.plant.plant()?;
     let band = band_from(args.band)?;
     positive("--rate", args.rate, "Hz")?;
-    positive("--count-size", args.count_size, "units")?;
-    positive("--cruise-speed", args.cruise_speed, "units/s")?;
-    positive("--supply-min", args.supply_min, "V")?;
+    args.checks.validate()?;
     let d = tune::design_lead(&plant, args.crossover, args.phase_margin).map_err(design_error)?;
     let coeffs = match args.rate {
         Some(r) => Some(d.discretize(r).map_err(design_error)?),
@@ -133,12 +125,12 @@ fn loop_checks(
     args: &Args,
     warnings: &mut Vec<String>,
 ) -> Result<Option<tune::SectionCheck>, CliError> {
-    match (args.count_size, args.supply_min) {
+    match (args.checks.count_size, args.checks.supply_min) {
         (Some(count_size), Some(supply_min_volts)) => {
             let c = tune::check_section_rate_and_encoder(&tune::SectionCheckInput {
                 bandwidth_rad_s,
                 rate_hz: coeffs.rate_hz,
-                cruise_speed: args.cruise_speed.unwrap_or(0.0),
+                cruise_speed: args.checks.cruise_speed.unwrap_or(0.0),
                 count_size,
                 measured: tune::Measured::Position,
                 section: tune::FirstOrderSection::from_lead(coeffs),

@@ -79,6 +79,31 @@ impl PlantArgs {
     }
 }
 
+/// The encoder and supply flags of the loop checks, shared by `pd`, `lead` and `pi`.
+#[derive(Debug, Clone, clap::Args)]
+pub struct CheckArgs {
+    /// Encoder count size, units (for the encoder check; needs --rate and --supply-min).
+    #[arg(long, allow_negative_numbers = true)]
+    pub count_size: Option<f64>,
+    /// Cruise speed of the fastest move, units/s (for the counts-per-tick check; in `pd`
+    /// with --accel also the move-voltage check).
+    #[arg(long, allow_negative_numbers = true)]
+    pub cruise_speed: Option<f64>,
+    /// Lowest supply voltage, V (for the encoder-step check; in `pd` also the move-voltage
+    /// check).
+    #[arg(long, allow_negative_numbers = true)]
+    pub supply_min: Option<f64>,
+}
+
+impl CheckArgs {
+    /// Each given flag is finite and > 0, or exit 2 naming it.
+    pub fn validate(&self) -> Result<(), CliError> {
+        pd::positive("--count-size", self.count_size, "units")?;
+        pd::positive("--cruise-speed", self.cruise_speed, "units/s")?;
+        pd::positive("--supply-min", self.supply_min, "V")
+    }
+}
+
 /// A serializable value as JSON (`null` if it cannot be represented).
 pub fn to_value<T: serde::Serialize>(v: &T) -> serde_json::Value {
     serde_json::to_value(v).unwrap_or(serde_json::Value::Null)

@@ -40,18 +40,12 @@ pub struct Args {
     /// Target-meeting mode: include one tick of computation delay.
     #[arg(long)]
     pub with_delay: bool,
-    /// Encoder count size, units (for the encoder check).
-    #[arg(long, allow_negative_numbers = true)]
-    pub count_size: Option<f64>,
-    /// Cruise speed of the fastest move, units/s (for the per-tick and supply checks).
-    #[arg(long, allow_negative_numbers = true)]
-    pub cruise_speed: Option<f64>,
+    /// Encoder and supply flags of the loop checks.
+    #[command(flatten)]
+    pub checks: super::CheckArgs,
     /// Acceleration of the fastest move, units/s^2 (for the supply check).
     #[arg(long, allow_negative_numbers = true)]
     pub accel: Option<f64>,
-    /// Lowest supply voltage, V (for the encoder-step and move-voltage checks).
-    #[arg(long, allow_negative_numbers = true)]
-    pub supply_min: Option<f64>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
@@ -237,10 +231,8 @@ pub fn run(args: Args) -> Result<(), CliError> {
     let plant = args.plant.plant()?;
     let band = band_from(args.band)?;
     positive("--rate", args.rate, "Hz")?;
-    positive("--count-size", args.count_size, "units")?;
-    positive("--cruise-speed", args.cruise_speed, "units/s")?;
+    args.checks.validate()?;
     positive("--accel", args.accel, "units/s^2")?;
-    positive("--supply-min", args.supply_min, "V")?;
     let derivative: DerivativeOn = args.derivative.into();
     let mut warnings = Vec::new();
 
@@ -349,7 +341,9 @@ pub fn run(args: Args) -> Result<(), CliError> {
         "  feedforward: kv {:.6} V/(unit/s), ka {:.6} V/(unit/s^2), bias {} V\n",
         ff.kv, ff.ka, ff.bias
     );
-    if let (Some(c), Some(a), Some(s)) = (args.cruise_speed, args.accel, args.supply_min) {
+    if let (Some(c), Some(a), Some(s)) =
+        (args.checks.cruise_speed, args.accel, args.checks.supply_min)
+    {
         let mv = tune::check_move_voltage(&plant, c, a, s).map_err(design_error)?;
         text += &format!(
             "  move at {c} units/s, {a} units/s^2 needs {:.3} V of {s} V ({:.3} V left for feedback)\n",
@@ -361,14 +355,14 @@ pub fn run(args: Args) -> Result<(), CliError> {
         let input = tune::LoopCheckInput {
             bandwidth_rad_s: bw,
             rate_hz: rate,
-            cruise_speed: args.cruise_speed.unwrap_or(0.0),
-            count_size: args.count_size.unwrap_or(f64::NAN),
+            cruise_speed: args.checks.cruise_speed.unwrap_or(0.0),
+            count_size: args.checks.count_size.unwrap_or(f64::NAN),
             kp,
             kd,
-            supply_min_volts: args.supply_min.unwrap_or(f64::NAN),
+            supply_min_volts: args.checks.supply_min.unwrap_or(f64::NAN),
             crossover_rad_s: main.continuous.gain_crossover_rad_s,
         };
-        if args.count_size.is_some() && args.supply_min.is_some() && kp > 0.0 {
+        if args.checks.count_size.is_some() && args.checks.supply_min.is_some() && kp > 0.0 {
             let c = tune::check_rate_and_encoder(&input).map_err(design_error)?;
             warnings.extend(c.warnings.iter().cloned());
             text += &format!(

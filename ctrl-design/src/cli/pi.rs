@@ -25,15 +25,9 @@ pub struct Args {
     /// Loop rate, Hz: adds the per-tick gain and the discrete blocks.
     #[arg(long, allow_negative_numbers = true)]
     pub rate: Option<f64>,
-    /// Encoder count size, units (for the encoder check; needs --rate and --supply-min).
-    #[arg(long, allow_negative_numbers = true)]
-    pub count_size: Option<f64>,
-    /// Cruise speed of the fastest move, units/s (for the counts-per-tick check).
-    #[arg(long, allow_negative_numbers = true)]
-    pub cruise_speed: Option<f64>,
-    /// Lowest supply voltage, V (for the encoder-step check).
-    #[arg(long, allow_negative_numbers = true)]
-    pub supply_min: Option<f64>,
+    /// Encoder and supply flags of the loop checks.
+    #[command(flatten)]
+    pub checks: super::CheckArgs,
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
@@ -44,15 +38,13 @@ pub fn run(args: Args) -> Result<(), CliError> {
     let plant = args.plant.plant()?;
     let band = band_from(args.band)?;
     positive("--rate", args.rate, "Hz")?;
-    positive("--count-size", args.count_size, "units")?;
-    positive("--cruise-speed", args.cruise_speed, "units/s")?;
-    positive("--supply-min", args.supply_min, "V")?;
+    args.checks.validate()?;
     let d = tune::design_pi(&plant, args.bandwidth, args.damping).map_err(design_error)?;
     let rep = analysis::report_pi(&plant, d.kp, d.ki, args.rate, band);
     let mut warnings = Vec::new();
     report_warnings(&rep, &mut warnings);
     let bw = rep.continuous.bandwidth_rad_s.unwrap_or(d.bandwidth_rad_s);
-    let checks = match (args.rate, args.count_size, args.supply_min) {
+    let checks = match (args.rate, args.checks.count_size, args.checks.supply_min) {
         (Some(rate_hz), Some(count_size), Some(supply_min_volts)) => {
             // The firmware reads the speed as counts per tick: one count per tick is the
             // speed quantum `count_size * rate`, and kp + ki_per_tick is the first tick's
@@ -60,7 +52,7 @@ pub fn run(args: Args) -> Result<(), CliError> {
             let c = tune::check_section_rate_and_encoder(&tune::SectionCheckInput {
                 bandwidth_rad_s: bw,
                 rate_hz,
-                cruise_speed: args.cruise_speed.unwrap_or(0.0),
+                cruise_speed: args.checks.cruise_speed.unwrap_or(0.0),
                 count_size,
                 measured: tune::Measured::Speed,
                 section: d.section(rate_hz),
